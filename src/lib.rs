@@ -1,0 +1,13 @@
+//! ergopath: harvesting power of Markov jump networks, the universal bound on what added
+//! pathways can add to it, and designs that reach that bound.
+//!
+//! Data flows model -> steady -> bound -> design -> report; see DEVELOPERS.md for the map.
+//! [`commands`] holds one entry point per CLI command, so the binary only parses flags.
+
+pub mod commands;
+pub mod model;
+pub mod report;
+pub mod steady;
+pub mod units;
+
+pub use commands::Error;

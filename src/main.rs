@@ -1,0 +1,89 @@
+//! The `ergopath` binary: parses flags, calls [`ergopath::commands`], prints the result.
+//! Errors go to standard error with exit status 2 (bad input) or 1 (computation failed).
+
+use clap::{Args, Parser, Subcommand};
+use ergopath::commands::{self, Format};
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Parser)]
+#[command(
+    name = "ergopath",
+    version,
+    about = "Harvesting power of Markov jump networks, its universal bound, and designs that reach it",
+    after_help = "Example:\n  ergopath check problems/walker.toml\n  ergopath steady problems/walker.toml --json"
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Validate a model file and summarise it (states, transitions, implied values, cycles)
+    #[command(after_help = "Example:\n  ergopath check problems/walker.toml")]
+    Check {
+        /// Model file (TOML)
+        model: PathBuf,
+    },
+    /// Steady state: probabilities, fluxes, harvesting power, drive power, entropy production
+    #[command(after_help = "Example:\n  ergopath steady problems/walker.toml --json")]
+    Steady {
+        /// Model file (TOML)
+        model: PathBuf,
+        #[command(flatten)]
+        format: FormatFlags,
+    },
+}
+
+#[derive(Args)]
+struct FormatFlags {
+    /// Print one JSON object (keys as in the model-format documentation)
+    #[arg(long, conflicts_with = "csv")]
+    json: bool,
+    /// Print the per-transition table as CSV
+    #[arg(long)]
+    csv: bool,
+}
+
+impl FormatFlags {
+    fn format(&self) -> Format {
+        match (self.json, self.csv) {
+            (true, _) => Format::Json,
+            (_, true) => Format::Csv,
+            _ => Format::Text,
+        }
+    }
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match &cli.command {
+        Command::Check { model } => commands::check(model),
+        Command::Steady { model, format } => commands::steady(model, format.format()),
+    };
+    match result {
+        Ok(text) => print_ignoring_closed_pipe(&text),
+        Err(error) => {
+            eprintln!("error: {error}");
+            ExitCode::from(error.exit_code() as u8)
+        }
+    }
+}
+
+/// Prints to standard output; a closed pipe (e.g. `| head`) is not an error.
+fn print_ignoring_closed_pipe(text: &str) -> ExitCode {
+    let mut stdout = std::io::stdout().lock();
+    match stdout
+        .write_all(text.as_bytes())
+        .and_then(|_| stdout.flush())
+    {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: cannot write to standard output: {e}");
+            ExitCode::from(1)
+        }
+    }
+}

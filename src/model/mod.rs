@@ -1,0 +1,261 @@
+//! The model: states, transitions, units and design defaults, validated and in internal units.
+//!
+//! Owns reading a TOML model file ([`Model::load`]), converting its units (energies to kT,
+//! rates kept in the model's time unit), completing each transition by local detailed balance
+//! (LDB), and rejecting anything invalid with a located [`ModelError`]. The computational core
+//! that later stages use is the unit-free [`Network`]. This module must not solve anything:
+//! no steady states, no optimisation, no printing.
+
+mod error;
+mod file;
+mod parse;
+
+pub use error::{Diagnostic, ModelError, Position};
+
+use crate::units::Units;
+use std::path::{Path, PathBuf};
+
+/// Default LDB consistency tolerance in kT when a transition gives both `backward` and `drive`.
+pub const DEFAULT_LDB_TOLERANCE: f64 = 1e-6;
+
+/// One channel of a network: a pair of opposite jumps between two distinct states.
+///
+/// Energies are in kT, rates in the model's time unit. LDB holds by construction:
+/// `ln(forward / backward) = E_from - E_to + drive - work`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Channel {
+    pub from: usize,
+    pub to: usize,
+    pub forward: f64,
+    pub backward: f64,
+    /// Energy put into the work store per forward jump (kT).
+    pub work: f64,
+    /// Free energy drawn from the environment per forward jump (kT).
+    pub drive: f64,
+}
+
+impl Channel {
+    /// Net flux `forward p_from - backward p_to` at distribution `p`.
+    pub fn flux(&self, p: &[f64]) -> f64 {
+        self.forward * p[self.from] - self.backward * p[self.to]
+    }
+}
+
+/// The unit-free computational core: state energies (kT) and channels.
+///
+/// Invariants (established by [`Model`] validation or by the constructor's caller): at least two
+/// states, every rate positive and finite, every channel joins two distinct states in range, and
+/// the graph of channels is connected (so the generator is irreducible).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Network {
+    pub energies: Vec<f64>,
+    pub channels: Vec<Channel>,
+}
+
+impl Network {
+    /// Number of states.
+    pub fn len(&self) -> usize {
+        self.energies.len()
+    }
+
+    /// True when the network has no states.
+    pub fn is_empty(&self) -> bool {
+        self.energies.is_empty()
+    }
+
+    /// Largest rate of any jump.
+    pub fn max_rate(&self) -> f64 {
+        self.channels
+            .iter()
+            .map(|c| c.forward.max(c.backward))
+            .fold(0.0, f64::max)
+    }
+
+    /// Number of independent cycles (cyclomatic number `channels - states + 1` of a connected
+    /// graph; parallel channels between one pair each close a cycle).
+    pub fn cycle_count(&self) -> usize {
+        (self.channels.len() + 1).saturating_sub(self.len())
+    }
+
+    /// Heat-bath equilibrium `peq_i = exp(-E_i) / Z`, as natural logarithms (never underflows).
+    pub fn log_equilibrium(&self) -> Vec<f64> {
+        let min = self.energies.iter().copied().fold(f64::INFINITY, f64::min);
+        let log_z = self
+            .energies
+            .iter()
+            .map(|e| (-(e - min)).exp())
+            .sum::<f64>()
+            .ln()
+            - min;
+        self.energies.iter().map(|e| -e - log_z).collect()
+    }
+
+    /// Connected groups of states (as state indices, each sorted, groups ordered by their
+    /// smallest state). Channels are two-way, so connected means strongly connected.
+    pub fn components(&self) -> Vec<Vec<usize>> {
+        components(self.len(), self.channels.iter().map(|c| (c.from, c.to)))
+    }
+
+    /// The network with extra channels appended.
+    pub fn with_channels(&self, extra: &[Channel]) -> Network {
+        let mut net = self.clone();
+        net.channels.extend_from_slice(extra);
+        net
+    }
+}
+
+/// Connected groups of `n` vertices under undirected `edges` (union-find).
+pub fn components(n: usize, edges: impl IntoIterator<Item = (usize, usize)>) -> Vec<Vec<usize>> {
+    let mut parent: Vec<usize> = (0..n).collect();
+    fn root(parent: &mut [usize], mut i: usize) -> usize {
+        while parent[i] != i {
+            parent[i] = parent[parent[i]];
+            i = parent[i];
+        }
+        i
+    }
+    for (a, b) in edges {
+        let (ra, rb) = (root(&mut parent, a), root(&mut parent, b));
+        if ra != rb {
+            parent[ra.max(rb)] = ra.min(rb);
+        }
+    }
+    let mut groups: Vec<Vec<usize>> = Vec::new();
+    let mut slot = vec![usize::MAX; n];
+    for i in 0..n {
+        let r = root(&mut parent, i);
+        if slot[r] == usize::MAX {
+            slot[r] = groups.len();
+            groups.push(Vec::new());
+        }
+        groups[slot[r]].push(i);
+    }
+    groups
+}
+
+/// How a transition's missing half was completed by LDB.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Completion {
+    /// The file gave `backward`; the drive was implied.
+    DriveImplied,
+    /// The file gave `drive`; the backward rate was implied.
+    BackwardImplied,
+    /// The file gave both, and they agreed within the tolerance.
+    BothGiven,
+}
+
+/// Names and presentation data of one transition, parallel to `Network::channels`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TransitionInfo {
+    pub label: Option<String>,
+    pub completion: Completion,
+}
+
+/// Where added pathways may act.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub enum PairSelection {
+    /// Any pair of distinct states.
+    #[default]
+    All,
+    /// Only these unordered pairs of state indices (each stored with the smaller index first).
+    Only(Vec<(usize, usize)>),
+}
+
+/// Defaults for the design commands from the `[pathways]` table (flags override them).
+/// Rates are in the model's time unit, `work_limit` in kT.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct PathwayDefaults {
+    pub pairs: Option<PairSelection>,
+    pub max_pathways: Option<usize>,
+    pub rate_cap: Option<f64>,
+    pub total_rate: Option<f64>,
+    pub work_limit: Option<f64>,
+}
+
+/// A validated model in internal units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Model {
+    pub title: String,
+    /// The file it came from (for messages and result folders).
+    pub source: PathBuf,
+    pub units: Units,
+    pub state_names: Vec<String>,
+    pub network: Network,
+    pub transitions: Vec<TransitionInfo>,
+    pub pathways: PathwayDefaults,
+}
+
+impl Model {
+    /// Reads and validates a model file.
+    pub fn load(path: &Path) -> Result<Model, ModelError> {
+        let bytes = std::fs::read(path).map_err(|source| ModelError::Unreadable {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        let text = String::from_utf8(bytes).map_err(|e| {
+            ModelError::at(
+                path,
+                "",
+                None,
+                format!(
+                    "the file is not UTF-8 text (invalid byte at offset {})",
+                    e.utf8_error().valid_up_to()
+                ),
+                "save the model as UTF-8 encoded TOML text",
+            )
+        })?;
+        Self::parse(&text, path)
+    }
+
+    /// Validates model text; `path` is used in messages and as the default title.
+    pub fn parse(text: &str, path: &Path) -> Result<Model, ModelError> {
+        parse::parse_model(text, path)
+    }
+
+    /// Index of the state with this name.
+    pub fn state_index(&self, name: &str) -> Option<usize> {
+        self.state_names.iter().position(|n| n == name)
+    }
+
+    /// File stem used for the results folder (`results/<stem>/`).
+    pub fn stem(&self) -> String {
+        self.source
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "model".to_string())
+    }
+
+    /// Parses a pair list such as `A/B,C/D` (or `all`) against this model's state names.
+    pub fn parse_pairs(&self, text: &str) -> Result<PairSelection, String> {
+        let text = text.trim();
+        if text == "all" {
+            return Ok(PairSelection::All);
+        }
+        let mut pairs = Vec::new();
+        for item in text.split(',').map(str::trim).filter(|s| !s.is_empty()) {
+            let (a, b) = item
+                .split_once('/')
+                .ok_or_else(|| format!("pair '{item}' is not of the form FROM/TO (e.g. A/B)"))?;
+            let find = |name: &str| {
+                self.state_index(name.trim()).ok_or_else(|| {
+                    format!(
+                        "pair '{item}' names state '{}', which the model does not have (states: {})",
+                        name.trim(),
+                        self.state_names.join(", ")
+                    )
+                })
+            };
+            let (i, j) = (find(a)?, find(b)?);
+            if i == j {
+                return Err(format!("pair '{item}' joins a state to itself"));
+            }
+            pairs.push((i.min(j), i.max(j)));
+        }
+        if pairs.is_empty() {
+            return Err("the pair list is empty: give `all` or pairs like A/B,C/D".into());
+        }
+        pairs.sort_unstable();
+        pairs.dedup();
+        Ok(PairSelection::Only(pairs))
+    }
+}

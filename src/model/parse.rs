@@ -1,0 +1,458 @@
+//! Turns model text into a validated [`Model`]: TOML decoding, unit conversion, name
+//! resolution, LDB completion and the structural checks of the model format. Each failure is
+//! returned as a located [`ModelError`] with a suggested fix; nothing is printed here.
+
+use super::file::{ModelFile, PairsEntry, PathwaysEntry, StateEntry, TransitionEntry};
+use super::{
+    Channel, Completion, Model, ModelError, Network, PairSelection, PathwayDefaults,
+    TransitionInfo, DEFAULT_LDB_TOLERANCE,
+};
+use crate::units::{EnergyUnit, TimeUnit, Units};
+use std::collections::HashMap;
+use std::path::Path;
+use toml::Spanned;
+
+/// Shared context for building errors located in one file.
+struct Ctx<'a> {
+    path: &'a Path,
+    text: &'a str,
+}
+
+impl Ctx<'_> {
+    fn err<T>(
+        &self,
+        span: Option<usize>,
+        problem: impl Into<String>,
+        fix: impl Into<String>,
+    ) -> Result<T, ModelError> {
+        Err(ModelError::at(self.path, self.text, span, problem, fix))
+    }
+
+    fn at<T, U>(
+        &self,
+        value: &Spanned<U>,
+        problem: impl Into<String>,
+        fix: impl Into<String>,
+    ) -> Result<T, ModelError> {
+        self.err(Some(value.span().start), problem, fix)
+    }
+}
+
+pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> {
+    let ctx = Ctx { path, text };
+    let file: ModelFile = toml::from_str(text).map_err(|e| {
+        ModelError::at(
+            path,
+            text,
+            e.span().map(|s| s.start),
+            format!("not a valid model file: {}", e.message().trim_end()),
+            decode_fix(e.message()),
+        )
+    })?;
+    let units = parse_units(&ctx, &file)?;
+    let tolerance = match &file.ldb_tolerance {
+        None => DEFAULT_LDB_TOLERANCE,
+        Some(t) if t.get_ref().is_finite() && *t.get_ref() > 0.0 => *t.get_ref(),
+        Some(t) => {
+            return ctx.at(
+                t,
+                format!(
+                    "ldb_tolerance must be a positive number, got {}",
+                    t.get_ref()
+                ),
+                "use a small positive value in kT, e.g. ldb_tolerance = 1e-6",
+            )
+        }
+    };
+    let (state_names, energies) = parse_states(&ctx, &file.state, &units)?;
+    let index: HashMap<&str, usize> = state_names
+        .iter()
+        .enumerate()
+        .map(|(i, n)| (n.as_str(), i))
+        .collect();
+    if file.transition.is_empty() {
+        return ctx.err(
+            None,
+            "the model has no [[transition]]",
+            "add at least one [[transition]] with from, to, forward and backward (or drive)",
+        );
+    }
+    let mut channels = Vec::with_capacity(file.transition.len());
+    let mut transitions = Vec::with_capacity(file.transition.len());
+    for entry in &file.transition {
+        let (channel, info) = parse_transition(&ctx, entry, &index, &energies, &units, tolerance)?;
+        channels.push(channel);
+        transitions.push(info);
+    }
+    let network = Network { energies, channels };
+    check_connected(&ctx, &network, &state_names, &file.state)?;
+    let pathways = match &file.pathways {
+        None => PathwayDefaults::default(),
+        Some(p) => parse_pathways(&ctx, p.get_ref(), &index, &units)?,
+    };
+    let title = file.title.clone().unwrap_or_else(|| {
+        path.file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default()
+    });
+    Ok(Model {
+        title,
+        source: path.to_path_buf(),
+        units,
+        state_names,
+        network,
+        transitions,
+        pathways,
+    })
+}
+
+/// A fix for a TOML decoding message (unknown keys, wrong types, missing keys, syntax).
+fn decode_fix(message: &str) -> String {
+    if message.contains("unknown field") {
+        "remove or correct the key; the model format lists every accepted key".into()
+    } else if message.contains("missing field") {
+        "add the required key to this table".into()
+    } else if message.contains("invalid type") {
+        "give the value the type the model format asks for (numbers unquoted, names quoted)".into()
+    } else {
+        "correct the TOML syntax at this place".into()
+    }
+}
+
+fn parse_units(ctx: &Ctx, file: &ModelFile) -> Result<Units, ModelError> {
+    let mut units = Units::default();
+    if let Some(t) = &file.temperature {
+        let value = *t.get_ref();
+        if !(value.is_finite() && value > 0.0) {
+            return ctx.at(
+                t,
+                format!("temperature must be a positive number of kelvin, got {value}"),
+                "give the bath temperature in kelvin, e.g. temperature = 298.15",
+            );
+        }
+        units.temperature = value;
+    }
+    if let Some(u) = &file.energy_unit {
+        units.energy = EnergyUnit::parse(u.get_ref()).map_or_else(
+            || {
+                ctx.at(
+                    u,
+                    format!("unknown energy unit '{}'", u.get_ref()),
+                    format!("use one of: {}", EnergyUnit::NAMES.join(", ")),
+                )
+            },
+            Ok,
+        )?;
+    }
+    if let Some(u) = &file.time_unit {
+        units.time = TimeUnit::parse(u.get_ref()).map_or_else(
+            || {
+                ctx.at(
+                    u,
+                    format!("unknown time unit '{}'", u.get_ref()),
+                    format!("use one of: {}", TimeUnit::NAMES.join(", ")),
+                )
+            },
+            Ok,
+        )?;
+    }
+    Ok(units)
+}
+
+fn valid_name(name: &str) -> bool {
+    !name.is_empty()
+        && name
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || "_-.:".contains(c))
+}
+
+fn parse_states(
+    ctx: &Ctx,
+    entries: &[Spanned<StateEntry>],
+    units: &Units,
+) -> Result<(Vec<String>, Vec<f64>), ModelError> {
+    if entries.len() < 2 {
+        return ctx.err(
+            entries.first().map(|s| s.span().start),
+            format!(
+                "the model has {} [[state]] entries; a network needs at least two",
+                entries.len()
+            ),
+            "add [[state]] tables, each with a unique name (and an energy)",
+        );
+    }
+    let mut names = Vec::with_capacity(entries.len());
+    let mut energies = Vec::with_capacity(entries.len());
+    let mut seen: HashMap<String, usize> = HashMap::new();
+    for entry in entries {
+        let state = entry.get_ref();
+        let name = state.name.get_ref();
+        if !valid_name(name) {
+            return ctx.at(
+                &state.name,
+                format!("state name '{name}' is not allowed"),
+                "use a non-empty name of ASCII letters, digits and _ - . :",
+            );
+        }
+        if let Some(first) = seen.get(name) {
+            let line = super::Position::of_offset(ctx.text, *first).line;
+            return ctx.at(
+                &state.name,
+                format!("state name '{name}' is used twice (first on line {line})"),
+                "give every state a unique name",
+            );
+        }
+        seen.insert(name.clone(), state.name.span().start);
+        let energy = match &state.energy {
+            None => 0.0,
+            Some(e) => finite_energy(ctx, e, units, "energy")?,
+        };
+        names.push(name.clone());
+        energies.push(energy);
+    }
+    Ok((names, energies))
+}
+
+/// Largest energy magnitude accepted, in kT: beyond it no rate ratio is representable.
+const MAX_ENERGY_KT: f64 = 1e5;
+
+fn finite_energy(
+    ctx: &Ctx,
+    value: &Spanned<f64>,
+    units: &Units,
+    key: &str,
+) -> Result<f64, ModelError> {
+    let kt = units.to_kt(*value.get_ref());
+    if !kt.is_finite() || kt.abs() > MAX_ENERGY_KT {
+        return ctx.at(
+            value,
+            format!(
+                "{key} = {} {} is {} kT, outside the representable range of +-{MAX_ENERGY_KT:e} kT",
+                value.get_ref(),
+                units.energy.name(),
+                kt
+            ),
+            format!(
+                "give {key} as a finite number in {} of moderate size",
+                units.energy.name()
+            ),
+        );
+    }
+    Ok(kt)
+}
+
+fn positive_rate(ctx: &Ctx, value: &Spanned<f64>, key: &str) -> Result<f64, ModelError> {
+    let rate = *value.get_ref();
+    if !(rate.is_finite() && rate >= f64::MIN_POSITIVE) {
+        let why = if rate.is_nan() {
+            "not a number".to_string()
+        } else if rate > 0.0 && rate.is_finite() {
+            format!("{rate:e}, below the smallest normal double (2.2e-308)")
+        } else {
+            format!("{rate}")
+        };
+        return ctx.at(value, format!("{key} rate must be positive and finite, got {why}"), format!("give {key} as a positive rate per time unit; to remove a jump, remove the transition"));
+    }
+    Ok(rate)
+}
+
+fn parse_transition(
+    ctx: &Ctx,
+    entry: &Spanned<TransitionEntry>,
+    index: &HashMap<&str, usize>,
+    energies: &[f64],
+    units: &Units,
+    tolerance: f64,
+) -> Result<(Channel, TransitionInfo), ModelError> {
+    let t = entry.get_ref();
+    let state = |name: &Spanned<String>| -> Result<usize, ModelError> {
+        index.get(name.get_ref().as_str()).copied().map_or_else(
+            || {
+                let mut known: Vec<&str> = index.keys().copied().collect();
+                known.sort_unstable();
+                ctx.at(
+                    name,
+                    format!(
+                        "transition names state '{}', which is not declared",
+                        name.get_ref()
+                    ),
+                    format!(
+                        "declare it with [[state]] or use one of: {}",
+                        known.join(", ")
+                    ),
+                )
+            },
+            Ok,
+        )
+    };
+    let (from, to) = (state(&t.from)?, state(&t.to)?);
+    if from == to {
+        return ctx.at(
+            &t.to,
+            format!("transition goes from '{}' to itself", t.from.get_ref()),
+            "a transition must join two different states; remove it or change `to`",
+        );
+    }
+    let forward = positive_rate(ctx, &t.forward, "forward")?;
+    let work = match &t.work {
+        None => 0.0,
+        Some(w) => finite_energy(ctx, w, units, "work")?,
+    };
+    let bias = energies[from] - energies[to] - work; // ln(k+/k-) without the drive
+    let (backward, drive, completion) = match (&t.backward, &t.drive) {
+        (None, None) => {
+            return ctx.at(entry, "transition gives neither `backward` nor `drive`", "add `backward = <rate>` (the drive then follows from LDB) or `drive = <energy>` (0 for a thermal transition)");
+        }
+        (Some(b), None) => {
+            let backward = positive_rate(ctx, b, "backward")?;
+            (
+                backward,
+                (forward / backward).ln() - bias,
+                Completion::DriveImplied,
+            )
+        }
+        (None, Some(d)) => {
+            let drive = finite_energy(ctx, d, units, "drive")?;
+            let backward = (forward.ln() - (bias + drive)).exp();
+            if !(backward.is_finite() && backward >= f64::MIN_POSITIVE) {
+                return ctx.at(d, format!("LDB implies a backward rate of exp({:.4e}), which is not representable", forward.ln() - bias - drive), "give `backward` explicitly, or reduce the energy differences of this transition");
+            }
+            (backward, drive, Completion::BackwardImplied)
+        }
+        (Some(b), Some(d)) => {
+            let backward = positive_rate(ctx, b, "backward")?;
+            let drive = finite_energy(ctx, d, units, "drive")?;
+            let mismatch = (forward / backward).ln() - (bias + drive);
+            if mismatch.abs() > tolerance {
+                return ctx.at(entry, format!("`backward` and `drive` disagree with local detailed balance by {mismatch:.6e} kT: ln(forward/backward) = {:.6} kT but E_from - E_to + drive - work = {:.6} kT", (forward / backward).ln(), bias + drive), format!("drop one of `backward` and `drive` so LDB implies it, or correct them (tolerance {tolerance:e} kT, key ldb_tolerance)"));
+            }
+            (backward, drive, Completion::BothGiven)
+        }
+    };
+    let channel = Channel {
+        from,
+        to,
+        forward,
+        backward,
+        work,
+        drive,
+    };
+    Ok((
+        channel,
+        TransitionInfo {
+            label: t.label.clone(),
+            completion,
+        },
+    ))
+}
+
+fn check_connected(
+    ctx: &Ctx,
+    network: &Network,
+    names: &[String],
+    states: &[Spanned<StateEntry>],
+) -> Result<(), ModelError> {
+    let groups = network.components();
+    if groups.len() <= 1 {
+        return Ok(());
+    }
+    let describe = |g: &Vec<usize>| {
+        let shown: Vec<&str> = g.iter().take(8).map(|&i| names[i].as_str()).collect();
+        let more = if g.len() > 8 {
+            format!(", ... ({} states)", g.len())
+        } else {
+            String::new()
+        };
+        format!("{{{}{}}}", shown.join(", "), more)
+    };
+    let listed: Vec<String> = groups.iter().take(6).map(describe).collect();
+    let extra = if groups.len() > 6 {
+        format!(" and {} more", groups.len() - 6)
+    } else {
+        String::new()
+    };
+    let first_of_second = groups[1][0];
+    ctx.err(
+        Some(states[first_of_second].span().start),
+        format!(
+            "the network is not strongly connected: it splits into {} groups of states: {}{extra}",
+            groups.len(),
+            listed.join(" ")
+        ),
+        "add transitions that join the groups, or model each group in its own file",
+    )
+}
+
+fn parse_pathways(
+    ctx: &Ctx,
+    p: &PathwaysEntry,
+    index: &HashMap<&str, usize>,
+    units: &Units,
+) -> Result<PathwayDefaults, ModelError> {
+    let mut out = PathwayDefaults::default();
+    if let Some(pairs) = &p.pairs {
+        out.pairs = Some(match pairs.get_ref() {
+            PairsEntry::Keyword(k) if k == "all" => PairSelection::All,
+            PairsEntry::Keyword(k) => return ctx.at(
+                pairs,
+                format!("pairs = \"{k}\" is not understood"),
+                "use pairs = \"all\" or a list such as pairs = [[\"A\", \"B\"], [\"B\", \"C\"]]",
+            ),
+            PairsEntry::List(list) => {
+                let mut chosen = Vec::new();
+                for [a, b] in list {
+                    let find = |name: &String| {
+                        index.get(name.as_str()).copied().map_or_else(|| ctx.at(pairs, format!("pathway pair [{a:?}, {b:?}] names state '{name}', which is not declared"), "use names declared with [[state]]"), Ok)
+                    };
+                    let (i, j) = (find(a)?, find(b)?);
+                    if i == j {
+                        return ctx.at(
+                            pairs,
+                            format!("pathway pair [{a:?}, {b:?}] joins a state to itself"),
+                            "each pair must name two different states",
+                        );
+                    }
+                    chosen.push((i.min(j), i.max(j)));
+                }
+                if chosen.is_empty() {
+                    return ctx.at(
+                        pairs,
+                        "pairs is an empty list",
+                        "list at least one pair, or use pairs = \"all\"",
+                    );
+                }
+                chosen.sort_unstable();
+                chosen.dedup();
+                PairSelection::Only(chosen)
+            }
+        });
+    }
+    if let Some(k) = &p.max_pathways {
+        if *k.get_ref() < 1 {
+            return ctx.at(
+                k,
+                format!("max_pathways must be at least 1, got {}", k.get_ref()),
+                "give a whole number of pathways, e.g. max_pathways = 2",
+            );
+        }
+        out.max_pathways = Some(*k.get_ref() as usize);
+    }
+    let positive = |v: &Option<Spanned<f64>>, key: &str| -> Result<Option<f64>, ModelError> {
+        match v {
+            None => Ok(None),
+            Some(x) if x.get_ref().is_finite() && *x.get_ref() > 0.0 => Ok(Some(*x.get_ref())),
+            Some(x) => ctx.at(
+                x,
+                format!(
+                    "{key} must be a positive finite number, got {}",
+                    x.get_ref()
+                ),
+                format!("give {key} as a positive number, or remove it for no limit"),
+            ),
+        }
+    };
+    out.rate_cap = positive(&p.rate_cap, "rate_cap")?;
+    out.total_rate = positive(&p.total_rate, "total_rate")?;
+    out.work_limit = positive(&p.work_limit, "work_limit")?.map(|w| units.to_kt(w));
+    Ok(out)
+}

@@ -1,0 +1,135 @@
+//! The `steady` report: stationary distribution, per-transition fluxes and the power budget.
+
+use super::table::{num, percent, sci, Align, Table};
+use super::{csv_field, named_distribution, transition_name, StateProbability, UnitsJson};
+use crate::model::Model;
+use crate::steady::{Observables, SteadyState};
+use serde::Serialize;
+
+/// Everything the steady report shows, in the model's units.
+#[derive(Debug, Clone, Serialize)]
+pub struct SteadyReport {
+    pub title: String,
+    pub units: UnitsJson,
+    pub method: &'static str,
+    pub relative_residual: f64,
+    pub states: Vec<StateProbability>,
+    pub transitions: Vec<TransitionFlux>,
+    pub power: f64,
+    pub drive_power: f64,
+    /// In units of k_B per time unit.
+    pub entropy_production: f64,
+    pub efficiency: Option<f64>,
+    pub power_watts_per_molecule: f64,
+    /// Relative error of `drive power - power = kT * entropy production`.
+    pub free_energy_balance_error: f64,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct TransitionFlux {
+    pub from: String,
+    pub to: String,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    pub flux: f64,
+    pub work_rate: f64,
+    pub drive_rate: f64,
+}
+
+impl SteadyReport {
+    pub fn new(model: &Model, steady: &SteadyState, obs: &Observables) -> Self {
+        let u = &model.units;
+        let transitions = model
+            .network
+            .channels
+            .iter()
+            .enumerate()
+            .map(|(c, ch)| TransitionFlux {
+                from: model.state_names[ch.from].clone(),
+                to: model.state_names[ch.to].clone(),
+                label: model.transitions[c].label.clone(),
+                flux: obs.fluxes[c],
+                work_rate: u.from_kt(obs.work_rates[c]),
+                drive_rate: u.from_kt(obs.drive_rates[c]),
+            })
+            .collect();
+        Self {
+            title: model.title.clone(),
+            units: UnitsJson::of(model),
+            method: steady.method.name(),
+            relative_residual: steady.relative_residual,
+            states: named_distribution(model, &steady.probabilities),
+            transitions,
+            power: u.from_kt(obs.power),
+            drive_power: u.from_kt(obs.drive_power),
+            entropy_production: obs.entropy_production,
+            efficiency: obs.efficiency,
+            power_watts_per_molecule: u.watts(obs.power),
+            free_energy_balance_error: obs.balance_error,
+        }
+    }
+
+    /// The readable report.
+    pub fn text(&self, model: &Model) -> String {
+        let t = &self.units.time;
+        let mut out = format!(
+            "Steady state of {}  ({}, {} states)\n\n",
+            self.title,
+            self.method,
+            self.states.len()
+        );
+        let mut states = Table::new(&[("state", Align::Left), ("probability", Align::Right)]);
+        for s in &self.states {
+            states.row(vec![s.name.clone(), sci(s.probability)]);
+        }
+        out.push_str(&states.render());
+        out.push('\n');
+        let mut flows = Table::new(&[
+            ("transition", Align::Left),
+            (&format!("flux /{t}"), Align::Right),
+            ("work rate", Align::Right),
+            ("drive rate", Align::Right),
+        ]);
+        for (c, tr) in self.transitions.iter().enumerate() {
+            flows.row(vec![
+                transition_name(model, c),
+                num(tr.flux),
+                num(tr.work_rate),
+                num(tr.drive_rate),
+            ]);
+        }
+        out.push_str(&flows.render());
+        let p = &self.units.power;
+        out.push_str(&format!(
+            "\n  harvesting power     {} {p}  ({:.4e} W per molecule)\n  drive power          {} {p}\n  entropy production   {} k_B/{t}\n  efficiency           {}\n",
+            num(self.power),
+            self.power_watts_per_molecule,
+            num(self.drive_power),
+            num(self.entropy_production),
+            self.efficiency.map_or("n/a (no drive power)".to_string(), percent),
+        ));
+        out.push_str(&format!(
+            "  checks               free-energy balance {:.1e}, residual {:.1e}\n",
+            self.free_energy_balance_error, self.relative_residual
+        ));
+        out
+    }
+
+    /// The per-transition table as CSV.
+    pub fn csv(&self) -> String {
+        let mut out = String::from("index,from,to,label,flux,work_rate,drive_rate\n");
+        for (i, tr) in self.transitions.iter().enumerate() {
+            out.push_str(&format!(
+                "{},{},{},{},{:e},{:e},{:e}\n",
+                i,
+                csv_field(&tr.from),
+                csv_field(&tr.to),
+                csv_field(tr.label.as_deref().unwrap_or("")),
+                tr.flux,
+                tr.work_rate,
+                tr.drive_rate
+            ));
+        }
+        out
+    }
+}

@@ -60,3 +60,49 @@ pub fn steady(path: &Path, format: Format) -> Result<String, Error> {
         Format::Csv => report.csv(),
     })
 }
+
+/// `ergopath bench`: steady-state timings on the seeded synthetic families; the table is
+/// returned and also written to `<out_dir>/steady.csv`.
+pub fn bench(sizes: &[usize], runs: usize, out_dir: &Path) -> Result<String, Error> {
+    use crate::bench::{time_steady, Family};
+    use crate::report::table::{Align, Table};
+    if let Some(&bad) = sizes.iter().find(|&&n| n < 4) {
+        return Err(Error::Usage(format!(
+            "benchmark size {bad} is too small: give sizes of at least 4 states"
+        )));
+    }
+    let rows = time_steady(sizes, &[Family::Banded, Family::RandomChords], runs)?;
+    let mut table = Table::new(&[
+        ("family", Align::Left),
+        ("states", Align::Right),
+        ("median s", Align::Right),
+        ("method", Align::Left),
+        ("residual", Align::Right),
+    ]);
+    let mut csv = String::from("family,states,median_seconds,method,relative_residual\n");
+    for r in &rows {
+        table.row(vec![
+            r.family.name().into(),
+            r.states.to_string(),
+            format!("{:.4}", r.seconds),
+            r.method.into(),
+            format!("{:.1e}", r.relative_residual),
+        ]);
+        csv.push_str(&format!(
+            "{},{},{:e},{},{:e}\n",
+            r.family.name(),
+            r.states,
+            r.seconds,
+            r.method,
+            r.relative_residual
+        ));
+    }
+    let path = out_dir.join("steady.csv");
+    crate::report::output::write_atomic(&path, csv.as_bytes())?;
+    Ok(format!(
+        "Steady-state solve, median of {runs} runs (2n channels each; random chords only up to {} states)\n\n{}\n  written: {}\n",
+        crate::bench::RANDOM_CHORDS_LIMIT,
+        table.render(),
+        path.display()
+    ))
+}

@@ -4,7 +4,9 @@
 //! Data flows model -> steady -> bound -> design -> report; see DEVELOPERS.md for the map.
 //! [`commands`] holds one entry point per CLI command, so the binary only parses flags.
 
+pub mod bench;
 pub mod commands;
+pub mod linalg;
 pub mod model;
 pub mod report;
 pub mod steady;

@@ -35,6 +35,19 @@ enum Command {
         #[command(flatten)]
         format: FormatFlags,
     },
+    /// Time the solvers on seeded synthetic networks (banded and random-chord families)
+    #[command(after_help = "Example:\n  ergopath bench --sizes 100,1000,100000 --runs 3")]
+    Bench {
+        /// Network sizes (states), comma separated
+        #[arg(long, value_delimiter = ',', default_value = "100,1000,10000,100000")]
+        sizes: Vec<usize>,
+        /// Runs per size; the median is reported
+        #[arg(long, default_value_t = 3)]
+        runs: usize,
+        /// Folder for the timing table
+        #[arg(long, default_value = "results/bench")]
+        out: PathBuf,
+    },
 }
 
 #[derive(Args)]
@@ -62,6 +75,7 @@ fn main() -> ExitCode {
     let result = match &cli.command {
         Command::Check { model } => commands::check(model),
         Command::Steady { model, format } => commands::steady(model, format.format()),
+        Command::Bench { sizes, runs, out } => commands::bench(sizes, *runs, out),
     };
     match result {
         Ok(text) => print_ignoring_closed_pipe(&text),

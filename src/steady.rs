@@ -5,15 +5,15 @@
 //!   elimination of Grassmann, Taksar & Heyman (1985, Oper. Res. 33, 1107), which keeps every
 //!   probability, however tiny, to full relative accuracy;
 //! - larger ones use a sparse LU (faer) of the generator with one state eliminated, followed by
-//!   iterative refinement and subtraction-free Gauss-Seidel corrections of the smallest
-//!   components, so that no probability is ever returned as zero or negative.
+//!   iterative refinement and a level-by-level re-solve of components too small for the LU's
+//!   absolute accuracy, so that no probability is returned as zero or negative.
 //!
 //! It also computes fluxes, powers and entropy production at any distribution ([`observe`]).
 //! Energies are in kT, rates in the model's time unit. No file I/O, no printing.
 
+use crate::linalg::SparseLu;
 use crate::model::Network;
-use faer::linalg::solvers::Solve;
-use faer::sparse::{SparseColMat, Triplet};
+use faer::sparse::Triplet;
 use faer::Mat;
 
 /// Errors of the numerical layer.
@@ -48,15 +48,16 @@ impl Method {
 pub struct SteadySettings {
     /// Largest network solved densely (GTH is O(n^3) but exact in relative terms). Default 400.
     pub dense_limit: usize,
-    /// Maximum sweeps of the Gauss-Seidel correction of tiny components (sparse path). Default 200.
-    pub correction_sweeps: usize,
+    /// Levels of re-solving ever smaller components on the sparse path (each level extends full
+    /// relative accuracy by about 8 decades). Default 48.
+    pub max_levels: usize,
 }
 
 impl Default for SteadySettings {
     fn default() -> Self {
         Self {
             dense_limit: 400,
-            correction_sweeps: 200,
+            max_levels: 48,
         }
     }
 }
@@ -168,21 +169,40 @@ impl Adjacency {
         }
         Self { inflow, exit }
     }
-
-    /// The balance value `sum_j k_ji p_j / exit_i`, computed without subtraction.
-    fn balanced(&self, i: usize, p: &[f64]) -> f64 {
-        self.inflow[i].iter().map(|&(j, k)| k * p[j]).sum::<f64>() / self.exit[i]
-    }
 }
 
 /// Sparse LU of the generator with the row and column of a reference state removed.
+///
+/// The reference state should be a probable one (eliminating an improbable state scales the
+/// solve by its tiny probability), so the state with the largest exit rate is tried first and,
+/// if it turns out to be improbable, the solve is repeated with the most probable state.
 fn sparse(network: &Network, settings: &SteadySettings) -> Result<Vec<f64>, SolveError> {
     let n = network.len();
     let adjacency = Adjacency::new(network);
-    // The state with the largest exit rate is eliminated: its column is the right-hand side.
-    let reference = (0..n)
+    let first = (0..n)
         .max_by(|&a, &b| adjacency.exit[a].total_cmp(&adjacency.exit[b]))
         .unwrap_or(0);
+    let mut p = sparse_with_reference(network, &adjacency, first)?;
+    // A badly scaled first solve can return the most probable state with the wrong sign.
+    let best = (0..n)
+        .max_by(|&a, &b| p[a].abs().total_cmp(&p[b].abs()))
+        .unwrap_or(first);
+    let first_is_probable = p[first] >= 1e-3 * p[best].abs(); // false also for NaN
+    if best != first && !first_is_probable {
+        p = sparse_with_reference(network, &adjacency, best)?;
+    }
+    resolve_small_components(&adjacency, &mut p, settings.max_levels)?;
+    normalise(&mut p);
+    Ok(p)
+}
+
+/// One sparse solve with `reference` eliminated (its probability fixed to 1), refined twice.
+fn sparse_with_reference(
+    network: &Network,
+    adjacency: &Adjacency,
+    reference: usize,
+) -> Result<Vec<f64>, SolveError> {
+    let n = network.len();
     let reduced = |i: usize| if i < reference { i } else { i - 1 };
     let mut triplets = Vec::with_capacity(4 * network.channels.len() + n);
     let mut rhs = Mat::<f64>::zeros(n - 1, 1);
@@ -205,12 +225,8 @@ fn sparse(network: &Network, settings: &SteadySettings) -> Result<Vec<f64>, Solv
         jump(c.from, c.to, c.forward);
         jump(c.to, c.from, c.backward);
     }
-    let matrix = SparseColMat::<usize, f64>::try_new_from_triplets(n - 1, n - 1, &triplets)
-        .map_err(|e| SolveError::Factorisation(format!("{e:?}")))?;
-    let lu = matrix
-        .sp_lu()
-        .map_err(|e| SolveError::Factorisation(format!("{e:?}")))?;
-    let mut x = rhs.clone();
+    let lu = SparseLu::factor(n - 1, &triplets)?;
+    let mut x = rhs;
     lu.solve_in_place(x.as_mut());
     let expand = |x: &Mat<f64>| -> Vec<f64> {
         (0..n)
@@ -223,10 +239,8 @@ fn sparse(network: &Network, settings: &SteadySettings) -> Result<Vec<f64>, Solv
             })
             .collect()
     };
-    // Two steps of iterative refinement with the same factors.
     for _ in 0..2 {
-        let full = expand(&x);
-        let rp = apply_generator(network, &full);
+        let rp = apply_generator(network, &expand(&x));
         let mut correction = Mat::<f64>::from_fn(n - 1, 1, |r, _| {
             let i = if r < reference { r } else { r + 1 };
             -rp[i]
@@ -236,40 +250,57 @@ fn sparse(network: &Network, settings: &SteadySettings) -> Result<Vec<f64>, Solv
             x[(r, 0)] += correction[(r, 0)];
         }
     }
-    let mut p = expand(&x);
-    correct_small_components(&adjacency, &mut p, settings.correction_sweeps);
-    normalise(&mut p);
-    Ok(p)
+    Ok(expand(&x))
 }
 
-/// Gauss-Seidel sweeps `p_i <- sum_j k_ji p_j / exit_i` over components too small for the
-/// LU's absolute accuracy (or negative). Each update is a sum of positive terms, so the
-/// corrected components are positive and accurate relative to their neighbours.
-fn correct_small_components(adjacency: &Adjacency, p: &mut [f64], sweeps: usize) {
-    let max = p.iter().copied().fold(0.0, f64::max);
-    let threshold = 1e-8 * max;
-    let mut small: Vec<usize> = (0..p.len()).filter(|&i| p[i] < threshold).collect();
-    if small.is_empty() {
-        return;
-    }
-    // Larger components first, so corrections flow outward from well-resolved states.
-    small.sort_by(|&a, &b| p[b].total_cmp(&p[a]));
-    for &i in &small {
-        p[i] = p[i].max(0.0);
-    }
-    for _ in 0..sweeps {
-        let mut change = 0.0f64;
-        for &i in &small {
-            let new = adjacency.balanced(i, p);
-            if new > 0.0 {
-                change = change.max(((new - p[i]) / new).abs());
+/// Re-solves, level by level, the components too small for the previous solve's absolute
+/// accuracy (below 1e-8 of that level's largest, or not positive).
+///
+/// With the larger components `L` held fixed, the small set `S` satisfies
+/// `exit_i p_i - sum_{j in S} k_ji p_j = sum_{j in L} k_ji p_j` for `i` in `S`: a nonsingular
+/// M-matrix with a nonnegative right-hand side whose scale is that of `S` itself, so the new
+/// solution is accurate relative to the largest member of `S`. Repeating on what is still small
+/// extends full accuracy down the whole range of doubles.
+fn resolve_small_components(
+    adjacency: &Adjacency,
+    p: &mut [f64],
+    max_levels: usize,
+) -> Result<(), SolveError> {
+    let n = p.len();
+    let mut active: Vec<usize> = (0..n).collect();
+    for _ in 0..max_levels {
+        let max = active.iter().map(|&i| p[i]).fold(0.0, f64::max);
+        let small: Vec<usize> = active
+            .iter()
+            .copied()
+            .filter(|&i| p[i] < 1e-8 * max || p[i].is_nan())
+            .collect();
+        if small.is_empty() || small.len() == active.len() {
+            return Ok(());
+        }
+        let mut slot = vec![usize::MAX; n];
+        for (k, &i) in small.iter().enumerate() {
+            slot[i] = k;
+        }
+        let mut triplets = Vec::new();
+        let mut rhs = Mat::<f64>::zeros(small.len(), 1);
+        for (k, &i) in small.iter().enumerate() {
+            triplets.push(Triplet::new(k, k, adjacency.exit[i]));
+            for &(j, rate) in &adjacency.inflow[i] {
+                match slot[j] {
+                    usize::MAX => rhs[(k, 0)] += rate * p[j],
+                    col => triplets.push(Triplet::new(k, col, -rate)),
+                }
             }
-            p[i] = new;
         }
-        if change < 1e-15 {
-            break;
+        let m = small.len();
+        SparseLu::factor(m, &triplets)?.solve_in_place(rhs.as_mut());
+        for (k, &i) in small.iter().enumerate() {
+            p[i] = rhs[(k, 0)];
         }
+        active = small;
     }
+    Ok(())
 }
 
 /// Observables of a network at a distribution `p` (energies in kT, rates per time unit).

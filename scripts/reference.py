@@ -1,0 +1,193 @@
+#!/usr/bin/env python3
+"""Independent reference values for the Rust test suite, computed with general-purpose libraries.
+
+Reads each model file with Python's own TOML parser and applies the units and local detailed
+balance of the model format independently of the Rust code, then computes:
+
+* the steady state and per-transition fluxes, powers and entropy production with mpmath
+  (arbitrary precision, 50 digits: every probability to full relative accuracy), cross-checked
+  against scipy's sparse LU of the generator with one row and column eliminated;
+
+and writes them to tests/fixtures/reference/<model>.json. It also (re)writes the seeded random
+models in tests/fixtures/models/. `cargo test` only reads these files; CI re-runs this script in
+a fresh virtual environment with the pinned versions of scripts/requirements.txt and fails if
+any fixture changes.
+
+Usage: python scripts/reference.py            (from the repository root)
+"""
+
+import json
+import math
+import sys
+import tomllib
+from pathlib import Path
+
+import mpmath as mp
+import numpy as np
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+
+ROOT = Path(__file__).resolve().parent.parent
+MODELS = ROOT / "tests" / "fixtures" / "models"
+OUT = ROOT / "tests" / "fixtures" / "reference"
+
+# Exact SI constants (2019 SI).
+K_B = 1.380649e-23
+N_A = 6.02214076e23
+E_CHARGE = 1.602176634e-19
+
+mp.mp.dps = 50
+
+
+def joules_per_unit(unit, temperature):
+    return {
+        "kT": K_B * temperature,
+        "kJ/mol": 1e3 / N_A,
+        "kcal/mol": 4184.0 / N_A,
+        "eV": E_CHARGE,
+        "zJ": 1e-21,
+        "pN nm": 1e-21,
+    }[unit]
+
+
+def load_model(path):
+    """The network of a model file: energies in kT, channels (a, b, k+, k-, work kT, drive kT)."""
+    data = tomllib.loads(Path(path).read_text())
+    temperature = data.get("temperature", 298.15)
+    unit = data.get("energy_unit", "kT")
+    to_kt = joules_per_unit(unit, temperature) / (K_B * temperature)
+    names = [s["name"] for s in data["state"]]
+    energy = [mp.mpf(s.get("energy", 0.0)) * to_kt for s in data["state"]]
+    index = {n: i for i, n in enumerate(names)}
+    channels = []
+    for t in data["transition"]:
+        a, b = index[t["from"]], index[t["to"]]
+        kf = mp.mpf(t["forward"])
+        work = mp.mpf(t.get("work", 0.0)) * to_kt
+        bias = energy[a] - energy[b] - work
+        if "drive" in t:
+            drive = mp.mpf(t["drive"]) * to_kt
+            kb = kf * mp.exp(-(bias + drive))
+        else:
+            kb = mp.mpf(t["backward"])
+            drive = mp.log(kf / kb) - bias
+        channels.append((a, b, kf, kb, work, drive))
+    return {"names": names, "energy": energy, "channels": channels, "to_kt": to_kt}
+
+
+def generator_mp(model):
+    n = len(model["names"])
+    r = mp.zeros(n, n)
+    for a, b, kf, kb, _, _ in model["channels"]:
+        r[b, a] += kf
+        r[a, a] -= kf
+        r[a, b] += kb
+        r[b, b] -= kb
+    return r
+
+
+def steady_mp(model):
+    """R p = 0 with the last equation replaced by normalisation, solved at 50 digits."""
+    n = len(model["names"])
+    a = generator_mp(model)
+    for j in range(n):
+        a[n - 1, j] = mp.mpf(1)
+    rhs = mp.zeros(n, 1)
+    rhs[n - 1] = mp.mpf(1)
+    p = mp.lu_solve(a, rhs)
+    return [p[i] for i in range(n)]
+
+
+def steady_scipy(model):
+    """Sparse LU (SuperLU) of the generator with state 0's row and column eliminated."""
+    n = len(model["names"])
+    rows, cols, vals = [], [], []
+    for a, b, kf, kb, _, _ in model["channels"]:
+        kf, kb = float(kf), float(kb)
+        rows += [b, a, a, b]
+        cols += [a, a, b, b]
+        vals += [kf, -kf, kb, -kb]
+    r = sp.csc_matrix((vals, (rows, cols)), shape=(n, n))
+    reduced = r[1:, 1:].tocsc()
+    x = spla.splu(reduced).solve(-r[1:, 0].toarray().ravel())
+    p = np.concatenate([[1.0], x])
+    return p / p.sum()
+
+
+def observables(model, p):
+    fluxes, power, drive_power, sigma = [], mp.mpf(0), mp.mpf(0), mp.mpf(0)
+    for a, b, kf, kb, work, drive in model["channels"]:
+        j = kf * p[a] - kb * p[b]
+        fluxes.append(j)
+        power += work * j
+        drive_power += drive * j
+        sigma += j * mp.log(kf * p[a] / (kb * p[b]))
+    return fluxes, power, drive_power, sigma
+
+
+def reference_steady(path):
+    model = load_model(path)
+    p = steady_mp(model)
+    p_scipy = steady_scipy(model)
+    worst = max(abs(float(x) - y) for x, y in zip(p, p_scipy))
+    assert worst < 1e-9, f"{path}: scipy's sparse LU and mpmath disagree by {worst}"
+    fluxes, power, drive_power, sigma = observables(model, p)
+    to_unit = 1 / model["to_kt"]
+    return {
+        "probabilities": [float(x) for x in p],
+        "fluxes": [float(x) for x in fluxes],
+        "power": float(power * to_unit),
+        "drive_power": float(drive_power * to_unit),
+        "entropy_production": float(sigma),
+        "scipy_max_abs_difference": float(f"{worst:.1e}"),
+    }
+
+
+def random_model_text(seed):
+    """A connected random network: a random spanning tree plus extra chords."""
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(3, 9))
+    energies = rng.uniform(-5, 5, n)
+    edges = [(int(rng.integers(0, i)), i) for i in range(1, n)]
+    for _ in range(int(rng.integers(1, n + 1))):
+        a, b = rng.choice(n, 2, replace=False)
+        edges.append((int(a), int(b)))
+    unit = "kJ/mol" if seed % 3 == 0 else "kT"
+    scale = 2.479 if unit == "kJ/mol" else 1.0  # numbers are written in the file's unit
+    lines = [
+        f"# Random network {seed}: generated by scripts/reference.py (numpy seed {seed}).",
+        "# Invented numbers for tests only.",
+        f'title = "random network {seed}"',
+        f'energy_unit = "{unit}"',
+        "",
+    ]
+    for i in range(n):
+        lines += ["[[state]]", f'name = "x{i}"', f"energy = {float(energies[i] * scale)!r}", ""]
+    for a, b in edges:
+        kf = float(10 ** rng.uniform(-2, 2))
+        lines += ["[[transition]]", f'from = "x{a}"', f'to = "x{b}"', f"forward = {kf!r}"]
+        if rng.random() < 0.5:
+            lines.append(f"drive = {float(rng.uniform(-3, 3) * scale)!r}")
+        else:
+            lines.append(f"backward = {float(10 ** rng.uniform(-2, 2))!r}")
+        if rng.random() < 0.5:
+            lines.append(f"work = {float(rng.uniform(-2, 2) * scale)!r}")
+        lines.append("")
+    return "\n".join(lines)
+
+
+def main():
+    MODELS.mkdir(parents=True, exist_ok=True)
+    OUT.mkdir(parents=True, exist_ok=True)
+    for seed in range(1, 7):
+        (MODELS / f"random{seed}.toml").write_text(random_model_text(seed))
+    paths = sorted((ROOT / "problems").glob("*.toml")) + sorted(MODELS.glob("*.toml"))
+    for path in paths:
+        result = {"model": str(path.relative_to(ROOT)), "steady": reference_steady(path)}
+        (OUT / f"{path.stem}.json").write_text(json.dumps(result, indent=1) + "\n")
+        print(f"{path.relative_to(ROOT)}: reference written")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

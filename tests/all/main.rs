@@ -1,0 +1,7 @@
+//! All integration tests, one binary grouped by topic.
+
+mod common;
+mod errors;
+mod published;
+mod reference;
+mod steady_numerics;

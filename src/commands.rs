@@ -106,3 +106,103 @@ pub fn bench(sizes: &[usize], runs: usize, out_dir: &Path) -> Result<String, Err
         path.display()
     ))
 }
+
+/// Settings of `ergopath bound` as given on the command line (model defaults fill the gaps).
+#[derive(Debug, Clone, Default)]
+pub struct BoundRequest {
+    /// `all` or `A/B,C/D`; `None` uses `[pathways] pairs` or all pairs.
+    pub pairs: Option<String>,
+    /// Per-direction rate cap for the exact capped design; `None` uses `[pathways] rate_cap`.
+    pub rate_cap: Option<f64>,
+    /// Share of the headroom the printed design must reach (0 < target < 1).
+    pub target: f64,
+    pub format: Format,
+}
+
+/// Shares of the headroom in the speed table.
+pub const SPEED_TABLE_FRACTIONS: [f64; 4] = [0.5, 0.9, 0.99, 0.999];
+
+/// `ergopath bound`: certified bound, attaining design, speed table, capped design.
+pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
+    use crate::bound::{self, design, BoundSettings};
+    use crate::report::bound::{BoundReport, VerifiedDesign};
+    let model = Model::load(path)?;
+    if !(request.target > 0.0 && request.target < 1.0) {
+        return Err(Error::Usage(format!(
+            "--target {} is not a share of the headroom: give a number between 0 and 1, e.g. 0.99",
+            request.target
+        )));
+    }
+    let pairs = match &request.pairs {
+        Some(text) => model
+            .parse_pairs(text)
+            .map_err(|e| Error::Usage(format!("--pairs: {e}")))?,
+        None => model.pathways.pairs.clone().unwrap_or_default(),
+    };
+    let rate_cap = request.rate_cap.or(model.pathways.rate_cap);
+    if let Some(cap) = rate_cap.filter(|c| !(c.is_finite() && *c > 0.0)) {
+        return Err(Error::Usage(format!(
+            "--rate-cap {cap}: give a positive rate per {}",
+            model.units.time.name()
+        )));
+    }
+    let net = &model.network;
+    let solved = bound::solve(net, &pairs, &BoundSettings::default())?;
+    let headroom = solved.headroom();
+    let has_headroom = headroom > 1e-12 * solved.power.abs().max(net.max_rate() * 1e-300);
+    let (mut design_out, mut speeds) = (None, Vec::new());
+    if has_headroom {
+        let tree = design::TreeDesign::new(net, &solved, &pairs);
+        speeds = SPEED_TABLE_FRACTIONS
+            .iter()
+            .map(|&f| (f, tree.speed_for(net, solved.baseline_power, headroom, f)))
+            .collect();
+        if let Some(speed) = tree.speed_for(net, solved.baseline_power, headroom, request.target) {
+            let (pathways, predicted_power) = tree
+                .at_speed(net, speed)
+                .expect("speed_for returns a reachable speed");
+            let achieved_power = design::verify(net, &pathways)?;
+            design_out = Some(VerifiedDesign {
+                pathways,
+                predicted_power,
+                achieved_power,
+            });
+        }
+    }
+    let capped = match rate_cap {
+        Some(cap) => {
+            let (pathways, predicted_power) = design::capped_design(net, &pairs, cap)?;
+            let achieved_power = design::verify(net, &pathways)?;
+            Some((
+                cap,
+                VerifiedDesign {
+                    pathways,
+                    predicted_power,
+                    achieved_power,
+                },
+            ))
+        }
+        None => None,
+    };
+    let pairs_text = match &pairs {
+        crate::model::PairSelection::All => "all pairs".to_string(),
+        crate::model::PairSelection::Only(list) => list
+            .iter()
+            .map(|&(a, b)| format!("{}/{}", model.state_names[a], model.state_names[b]))
+            .collect::<Vec<_>>()
+            .join(","),
+    };
+    let report = BoundReport::new(
+        &model,
+        &solved,
+        pairs_text,
+        design_out.as_ref(),
+        request.target,
+        &speeds,
+        capped.as_ref().map(|(c, d)| (*c, d)),
+    );
+    Ok(match request.format {
+        Format::Json => to_json(&report)?,
+        _ => report.text(),
+    })
+}

@@ -5,6 +5,7 @@
 //! [`commands`] holds one entry point per CLI command, so the binary only parses flags.
 
 pub mod bench;
+pub mod bound;
 pub mod commands;
 pub mod linalg;
 pub mod model;

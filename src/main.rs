@@ -35,6 +35,26 @@ enum Command {
         #[command(flatten)]
         format: FormatFlags,
     },
+    /// Universal bound on harvesting power under added pathways, with a design that attains it
+    #[command(
+        after_help = "Examples:\n  ergopath bound problems/ring6.toml\n  ergopath bound problems/walker.toml --pairs empty/stepped,fuel_bound/hydrolysed --rate-cap 1000 --json"
+    )]
+    Bound {
+        /// Model file (TOML)
+        model: PathBuf,
+        /// Where added pathways may act: `all` or pairs like A/B,C/D (default: the model's [pathways] pairs, else all)
+        #[arg(long)]
+        pairs: Option<String>,
+        /// Also find the exact best design with every added rate at most K (per time unit)
+        #[arg(long, value_name = "K")]
+        rate_cap: Option<f64>,
+        /// Share of the headroom the printed design reaches
+        #[arg(long, default_value_t = 0.99)]
+        target: f64,
+        /// Print one JSON object (keys as in the model-format documentation)
+        #[arg(long)]
+        json: bool,
+    },
     /// Time the solvers on seeded synthetic networks (banded and random-chord families)
     #[command(after_help = "Example:\n  ergopath bench --sizes 100,1000,100000 --runs 3")]
     Bench {
@@ -75,6 +95,21 @@ fn main() -> ExitCode {
     let result = match &cli.command {
         Command::Check { model } => commands::check(model),
         Command::Steady { model, format } => commands::steady(model, format.format()),
+        Command::Bound {
+            model,
+            pairs,
+            rate_cap,
+            target,
+            json,
+        } => commands::bound(
+            model,
+            &commands::BoundRequest {
+                pairs: pairs.clone(),
+                rate_cap: *rate_cap,
+                target: *target,
+                format: if *json { Format::Json } else { Format::Text },
+            },
+        ),
         Command::Bench { sizes, runs, out } => commands::bench(sizes, *runs, out),
     };
     match result {

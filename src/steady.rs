@@ -23,6 +23,10 @@ pub enum SolveError {
     Factorisation(String),
     #[error("the steady state could not be resolved: {0}")]
     Unresolved(String),
+    #[error("the conic solver (Clarabel) did not solve the bound program: status {0}")]
+    Conic(String),
+    #[error("the bound could not be certified: {0}")]
+    Uncertified(String),
 }
 
 /// How the steady state was computed.

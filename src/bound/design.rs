@@ -1,0 +1,261 @@
+//! Explicit Markovian designs: the tree design that attains the bound in the fast limit (theory
+//! note, section 4), its speed-versus-gap table, the exact rate-capped design (section 5), and
+//! the independent verification of any design by a steady-state solve of baseline + added rates.
+
+use super::conic::{self, Candidate};
+use super::objective::Objective;
+use super::Bound;
+use crate::model::{components, Channel, Network, PairSelection};
+use crate::steady::{self, SolveError, SteadySettings};
+
+/// An added pathway: rates and the work it stores per forward jump (kT). Zero drive.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Pathway {
+    pub from: usize,
+    pub to: usize,
+    pub forward: f64,
+    pub backward: f64,
+    pub work: f64,
+}
+
+impl Pathway {
+    /// The pathway with rates `forward`, `backward` between `from` and `to`, its work fixed by
+    /// LDB with zero drive: `v = E_from - E_to - ln(forward / backward)`.
+    pub fn with_rates(
+        network: &Network,
+        from: usize,
+        to: usize,
+        forward: f64,
+        backward: f64,
+    ) -> Self {
+        let work = network.energies[from] - network.energies[to] - (forward / backward).ln();
+        Self {
+            from,
+            to,
+            forward,
+            backward,
+            work,
+        }
+    }
+
+    pub fn channel(&self) -> Channel {
+        Channel {
+            from: self.from,
+            to: self.to,
+            forward: self.forward,
+            backward: self.backward,
+            work: self.work,
+            drive: 0.0,
+        }
+    }
+}
+
+/// Total harvesting power of the baseline plus `pathways`, from an independent steady-state
+/// solve of the joint network (kT per time unit).
+pub fn verify(network: &Network, pathways: &[Pathway]) -> Result<f64, SolveError> {
+    let extra: Vec<Channel> = pathways.iter().map(Pathway::channel).collect();
+    let joint = network.with_channels(&extra);
+    let state = steady::solve(&joint, &SteadySettings::default())?;
+    Ok(steady::observe(&joint, &state.probabilities).power)
+}
+
+/// The fewest pathways that hold `p` stationary: a tree over the states that routes the net
+/// inflow `s = -(R p)` they must supply. Edge `(a, b, J)`: net flux `J` from `a` to `b`.
+#[derive(Debug, Clone)]
+pub struct TreeDesign {
+    pub edges: Vec<(usize, usize, f64)>,
+    p: Vec<f64>,
+    /// `Phi(p)`, reached as every rate grows.
+    pub limit_power: f64,
+}
+
+impl TreeDesign {
+    /// Tree for the bound's `p*`: a star on the most probable state when all pairs are allowed,
+    /// otherwise a breadth-first spanning forest of each group of allowed pairs.
+    pub fn new(network: &Network, bound: &Bound, pairs: &PairSelection) -> Self {
+        let n = network.len();
+        let p = &bound.p;
+        let inflow_needed: Vec<f64> = Objective::new(network)
+            .generator_times(p)
+            .iter()
+            .map(|x| -x)
+            .collect();
+        let hub_of = |group: &[usize]| {
+            *group
+                .iter()
+                .max_by(|&&a, &&b| p[a].total_cmp(&p[b]))
+                .expect("non-empty group")
+        };
+        let mut parent: Vec<Option<usize>> = vec![None; n];
+        let mut order = Vec::with_capacity(n);
+        match pairs {
+            PairSelection::All => {
+                let hub = hub_of(&(0..n).collect::<Vec<_>>());
+                order.push(hub);
+                for i in (0..n).filter(|&i| i != hub) {
+                    parent[i] = Some(hub);
+                    order.push(i);
+                }
+            }
+            PairSelection::Only(list) => {
+                let mut adjacent = vec![Vec::new(); n];
+                for &(a, b) in list {
+                    adjacent[a].push(b);
+                    adjacent[b].push(a);
+                }
+                for group in components(n, list.iter().copied()) {
+                    let root = hub_of(&group);
+                    let mut seen = vec![false; n];
+                    seen[root] = true;
+                    let start = order.len();
+                    order.push(root);
+                    let mut head = start;
+                    while head < order.len() {
+                        let v = order[head];
+                        head += 1;
+                        for &w in &adjacent[v] {
+                            if !seen[w] {
+                                seen[w] = true;
+                                parent[w] = Some(v);
+                                order.push(w);
+                            }
+                        }
+                    }
+                }
+            }
+        }
+        // Net flux into each subtree, accumulated from the leaves up.
+        let mut subtree = inflow_needed;
+        let mut edges = Vec::new();
+        for &v in order.iter().rev() {
+            if let Some(u) = parent[v] {
+                edges.push((u, v, subtree[v]));
+                subtree[u] += subtree[v];
+            }
+        }
+        edges.reverse();
+        Self {
+            edges,
+            p: p.clone(),
+            limit_power: bound.power,
+        }
+    }
+
+    /// Pathways with every rate at most `speed`, each carrying its net flux with the least loss,
+    /// and the predicted power `Phi(p) - sum_e J_e ln(f_e / g_e)`. `None` if `speed` is too slow
+    /// to carry some net flux.
+    pub fn at_speed(&self, network: &Network, speed: f64) -> Option<(Vec<Pathway>, f64)> {
+        let mut pathways = Vec::with_capacity(self.edges.len());
+        let mut loss = 0.0;
+        let traffic_floor = 1e-14 * self.edges.iter().map(|e| e.2.abs()).fold(0.0, f64::max);
+        for &(a, b, j) in &self.edges {
+            if j.abs() <= traffic_floor {
+                continue;
+            }
+            let (pa, pb) = (self.p[a], self.p[b]);
+            let (f, g) = if j > 0.0 {
+                let g = (speed * pb).min(speed * pa - j);
+                (g + j, g)
+            } else {
+                let f = (speed * pa).min(speed * pb + j);
+                (f, f - j)
+            };
+            if !(f > 0.0 && g > 0.0) {
+                return None;
+            }
+            loss += j * (f / g).ln();
+            pathways.push(Pathway::with_rates(network, a, b, f / pa, g / pb));
+        }
+        Some((pathways, self.limit_power - loss))
+    }
+
+    /// Smallest speed (largest added rate) at which the design reaches `fraction` of `headroom`
+    /// above `baseline_power`, by bisection in log speed.
+    pub fn speed_for(
+        &self,
+        network: &Network,
+        baseline_power: f64,
+        headroom: f64,
+        fraction: f64,
+    ) -> Option<f64> {
+        let reaches = |speed: f64| {
+            self.at_speed(network, speed)
+                .is_some_and(|(_, power)| power - baseline_power >= fraction * headroom)
+        };
+        let mut hi = self
+            .edges
+            .iter()
+            .map(|&(a, b, j)| j.abs() / self.p[a].min(self.p[b]))
+            .fold(1e-300, f64::max);
+        let mut doublings = 0;
+        while !reaches(hi) {
+            hi *= 2.0;
+            doublings += 1;
+            if doublings > 2000 {
+                return None;
+            }
+        }
+        let mut lo = hi / 2.0;
+        for _ in 0..200 {
+            if hi / lo < 1.0 + 1e-10 {
+                break;
+            }
+            let mid = (lo * hi).sqrt();
+            if reaches(mid) {
+                hi = mid;
+            } else {
+                lo = mid;
+            }
+        }
+        Some(hi)
+    }
+}
+
+/// Candidate pairs for the capped design: every pair, or the allowed ones.
+pub fn candidates(n: usize, pairs: &PairSelection) -> Vec<Candidate> {
+    match pairs {
+        PairSelection::All => (0..n)
+            .flat_map(|a| (a + 1..n).map(move |b| Candidate { a, b }))
+            .collect(),
+        PairSelection::Only(list) => list.iter().map(|&(a, b)| Candidate { a, b }).collect(),
+    }
+}
+
+/// The exact best design with every added rate at most `cap` (pathways with negligible traffic
+/// dropped), and the power the convex program predicts for it.
+pub fn capped_design(
+    network: &Network,
+    pairs: &PairSelection,
+    cap: f64,
+) -> Result<(Vec<Pathway>, f64), SolveError> {
+    let objective = Objective::new(network);
+    let list = candidates(network.len(), pairs);
+    let solution = conic::capped(&objective, &list, cap)?;
+    let traffic: Vec<f64> = solution
+        .forward_flux
+        .iter()
+        .zip(&solution.backward_flux)
+        .map(|(f, g)| f + g)
+        .collect();
+    let busiest = traffic.iter().copied().fold(0.0, f64::max);
+    let mut pathways = Vec::new();
+    let mut predicted = objective.value(
+        &solution.p,
+        &solution
+            .p
+            .iter()
+            .map(|x| x.max(1e-300).ln())
+            .collect::<Vec<_>>(),
+    );
+    for (e, c) in list.iter().enumerate() {
+        let (f, g) = (solution.forward_flux[e], solution.backward_flux[e]);
+        if traffic[e] <= 1e-7 * busiest || f <= 0.0 || g <= 0.0 {
+            continue;
+        }
+        predicted -= (f - g) * (f / g).ln();
+        let forward = (f / solution.p[c.a]).min(cap);
+        let backward = (g / solution.p[c.b]).min(cap);
+        pathways.push(Pathway::with_rates(network, c.a, c.b, forward, backward));
+    }
+    Ok((pathways, predicted))
+}

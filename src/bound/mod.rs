@@ -1,0 +1,151 @@
+//! The universal bound on harvesting power under added pathways, its certificate, and the
+//! designs that attain it (theory note, sections 3 to 5).
+//!
+//! Owns: the routability constraints of a pair restriction, the solve of `Phi* = max Phi(p)`
+//! (Clarabel's exponential-cone program polished by log-domain Newton, with Newton from the
+//! baseline steady state as a second start), the certified upper value, the benefit/cost split,
+//! and (in [`design`]) the attaining tree design, its speed table and the rate-capped design.
+//! All quantities are in kT and the model's time unit. No I/O, no printing.
+
+pub mod conic;
+pub mod design;
+pub mod newton;
+pub mod objective;
+
+use crate::model::{components, Network, PairSelection};
+use crate::steady::{self, SolveError, SteadySettings};
+use newton::{Certified, Constraints, NewtonSettings};
+use objective::Objective;
+
+/// Settings of the bound solve.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct BoundSettings {
+    pub newton: NewtonSettings,
+    /// Skip the conic solver and run Newton from the baseline steady state only.
+    pub newton_only: bool,
+}
+
+/// The certified bound of one network.
+#[derive(Debug, Clone)]
+pub struct Bound {
+    /// Baseline steady state `pi`.
+    pub baseline: Vec<f64>,
+    /// `W(pi)`.
+    pub baseline_power: f64,
+    /// Maximiser `p*` (every component > 0) and its logarithm.
+    pub p: Vec<f64>,
+    pub log_p: Vec<f64>,
+    /// `Phi(p*)`: attained in the fast limit by the tree design.
+    pub power: f64,
+    /// Proven upper bound on `Phi*`.
+    pub certified_upper: f64,
+    /// `B(p*)` and `kT sigma_na(p*)`.
+    pub benefit: f64,
+    pub maintenance: f64,
+    /// How the maximiser was found (for reports).
+    pub route: &'static str,
+    pub iterations: usize,
+}
+
+impl Bound {
+    pub fn headroom(&self) -> f64 {
+        self.power - self.baseline_power
+    }
+
+    /// `(certified_upper - power) / max(|power|, |headroom|)`; 0 when both vanish.
+    pub fn relative_gap(&self) -> f64 {
+        let scale = self.power.abs().max(self.headroom().abs());
+        if scale > 0.0 {
+            (self.certified_upper - self.power) / scale
+        } else {
+            0.0
+        }
+    }
+}
+
+/// Rows `sum_{i in G} (R p)_i = 0` for every connected group `G` of (states, allowed pairs)
+/// but one (their sum is identically zero). Empty for `PairSelection::All`.
+pub fn routability(objective: &Objective, pairs: &PairSelection) -> Constraints {
+    let PairSelection::Only(list) = pairs else {
+        return Constraints::default();
+    };
+    let groups = components(objective.n, list.iter().copied());
+    let mut group_of = vec![0; objective.n];
+    for (g, members) in groups.iter().enumerate() {
+        for &i in members {
+            group_of[i] = g;
+        }
+    }
+    let mut rows: Vec<std::collections::BTreeMap<usize, f64>> =
+        vec![Default::default(); groups.len()];
+    for jump in &objective.jumps {
+        let (gs, gt) = (group_of[jump.source], group_of[jump.target]);
+        if gs != gt {
+            *rows[gt].entry(jump.source).or_insert(0.0) += jump.rate;
+            *rows[gs].entry(jump.source).or_insert(0.0) -= jump.rate;
+        }
+    }
+    rows.pop();
+    Constraints {
+        rows: rows.into_iter().map(|r| r.into_iter().collect()).collect(),
+    }
+}
+
+/// Solves and certifies the bound for added pathways restricted to `pairs`.
+pub fn solve(
+    network: &Network,
+    pairs: &PairSelection,
+    settings: &BoundSettings,
+) -> Result<Bound, SolveError> {
+    let objective = Objective::new(network);
+    let constraints = routability(&objective, pairs);
+    let baseline = steady::solve(network, &SteadySettings::default())?.probabilities;
+    let log_baseline: Vec<f64> = baseline.iter().map(|p| p.ln()).collect();
+    let mut best: Option<(Certified, &'static str)> = None;
+    let mut conic_error = None;
+    if !settings.newton_only {
+        match conic::universal(&objective, &constraints) {
+            Ok(p) => {
+                let floor = 1e-300;
+                let start: Vec<f64> = p.iter().map(|x| x.max(floor).ln()).collect();
+                best = Some((
+                    newton::maximise(&objective, &constraints, &start, &settings.newton)?,
+                    "Clarabel exponential-cone program, polished by log-domain Newton",
+                ));
+            }
+            Err(e) => conic_error = Some(e),
+        }
+    }
+    let tight = |c: &Certified| c.upper - c.value <= 1e-10 * c.value.abs().max(1e-300);
+    if best.as_ref().is_none_or(|(c, _)| !tight(c)) {
+        let from_baseline =
+            newton::maximise(&objective, &constraints, &log_baseline, &settings.newton)?;
+        let better = best
+            .as_ref()
+            .is_none_or(|(c, _)| from_baseline.upper - from_baseline.value < c.upper - c.value);
+        if better {
+            best = Some((
+                from_baseline,
+                "log-domain Newton from the baseline steady state",
+            ));
+        }
+    }
+    let (certified, route) = best.expect("at least one route ran");
+    if !(certified.value.is_finite() && certified.upper.is_finite()) {
+        return Err(conic_error
+            .unwrap_or_else(|| SolveError::Uncertified("the bound came out non-finite".into())));
+    }
+    let (benefit, maintenance) = objective.split(&certified.p, &certified.log_p, &log_baseline);
+    Ok(Bound {
+        baseline_power: objective.work(&baseline),
+        baseline,
+        power: certified.value,
+        certified_upper: certified.upper,
+        benefit,
+        maintenance,
+        p: certified.p,
+        log_p: certified.log_p,
+        route,
+        iterations: certified.iterations,
+    })
+}

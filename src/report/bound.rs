@@ -1,0 +1,228 @@
+//! The `bound` report: baseline power, certified universal bound, headroom, benefit/cost split,
+//! optimal distribution beside the baseline, the attaining design, its speed table, and the
+//! rate-capped design when a cap is given.
+
+use super::table::{num, percent, sci, Align, Table};
+use super::{named_distribution, StateProbability, UnitsJson};
+use crate::bound::design::Pathway;
+use crate::bound::Bound;
+use crate::model::Model;
+use serde::Serialize;
+
+#[derive(Debug, Clone, Serialize)]
+pub struct BoundNumbers {
+    pub power: f64,
+    pub certified_upper: f64,
+    pub headroom: f64,
+    pub relative_gap: f64,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct PathwayJson {
+    pub from: String,
+    pub to: String,
+    pub forward: f64,
+    pub backward: f64,
+    pub work: f64,
+}
+
+/// A verified design: `achieved_power` is from an independent steady-state solve.
+#[derive(Debug, Clone, Serialize)]
+pub struct DesignJson {
+    pub pathways: Vec<PathwayJson>,
+    pub achieved_power: f64,
+    pub fraction_of_headroom: Option<f64>,
+    /// What the construction predicts (fast-limit formula or convex program).
+    pub predicted_power: f64,
+    /// Largest added rate.
+    pub largest_rate: f64,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct SpeedRow {
+    pub fraction: f64,
+    /// Largest added rate needed, per time unit.
+    pub speed: Option<f64>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct CappedJson {
+    pub rate_cap: f64,
+    #[serde(flatten)]
+    pub design: DesignJson,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct BoundReport {
+    pub title: String,
+    pub units: UnitsJson,
+    pub pairs: String,
+    pub route: &'static str,
+    pub baseline_power: f64,
+    pub bound: BoundNumbers,
+    pub benefit: f64,
+    pub maintenance_cost: f64,
+    pub optimal_distribution: Vec<StateProbability>,
+    pub baseline_distribution: Vec<StateProbability>,
+    pub design: Option<DesignJson>,
+    pub target_fraction: f64,
+    pub speed_table: Vec<SpeedRow>,
+    pub rate_capped: Option<CappedJson>,
+}
+
+/// A design as computed (kT units) with its verified power, before unit conversion.
+pub struct VerifiedDesign {
+    pub pathways: Vec<Pathway>,
+    pub predicted_power: f64,
+    pub achieved_power: f64,
+}
+
+impl VerifiedDesign {
+    fn json(&self, model: &Model, bound: &Bound) -> DesignJson {
+        let u = &model.units;
+        let headroom = bound.headroom();
+        DesignJson {
+            pathways: self
+                .pathways
+                .iter()
+                .map(|p| PathwayJson {
+                    from: model.state_names[p.from].clone(),
+                    to: model.state_names[p.to].clone(),
+                    forward: p.forward,
+                    backward: p.backward,
+                    work: u.from_kt(p.work),
+                })
+                .collect(),
+            achieved_power: u.from_kt(self.achieved_power),
+            fraction_of_headroom: (headroom > 0.0)
+                .then(|| (self.achieved_power - bound.baseline_power) / headroom),
+            predicted_power: u.from_kt(self.predicted_power),
+            largest_rate: self
+                .pathways
+                .iter()
+                .map(|p| p.forward.max(p.backward))
+                .fold(0.0, f64::max),
+        }
+    }
+}
+
+impl BoundReport {
+    #[allow(clippy::too_many_arguments)]
+    pub fn new(
+        model: &Model,
+        bound: &Bound,
+        pairs: String,
+        design: Option<&VerifiedDesign>,
+        target_fraction: f64,
+        speeds: &[(f64, Option<f64>)],
+        capped: Option<(f64, &VerifiedDesign)>,
+    ) -> Self {
+        let u = &model.units;
+        Self {
+            title: model.title.clone(),
+            units: UnitsJson::of(model),
+            pairs,
+            route: bound.route,
+            baseline_power: u.from_kt(bound.baseline_power),
+            bound: BoundNumbers {
+                power: u.from_kt(bound.power),
+                certified_upper: u.from_kt(bound.certified_upper),
+                headroom: u.from_kt(bound.headroom()),
+                relative_gap: bound.relative_gap(),
+            },
+            benefit: u.from_kt(bound.benefit),
+            maintenance_cost: u.from_kt(bound.maintenance),
+            optimal_distribution: named_distribution(model, &bound.p),
+            baseline_distribution: named_distribution(model, &bound.baseline),
+            design: design.map(|d| d.json(model, bound)),
+            target_fraction,
+            speed_table: speeds
+                .iter()
+                .map(|&(fraction, speed)| SpeedRow { fraction, speed })
+                .collect(),
+            rate_capped: capped.map(|(rate_cap, d)| CappedJson {
+                rate_cap,
+                design: d.json(model, bound),
+            }),
+        }
+    }
+
+    pub fn text(&self) -> String {
+        let p = &self.units.power;
+        let t = &self.units.time;
+        let mut out = format!(
+            "Universal bound for {}  (added pathways on: {})\n\n",
+            self.title, self.pairs
+        );
+        out.push_str(&format!(
+            "  baseline power       {} {p}\n  bound                {} {p}   (certified upper {}, relative gap {:.1e})\n  headroom             {} {p}\n  split at the optimum benefit {} - maintenance cost {} {p}\n  solved by            {}\n\n",
+            num(self.baseline_power),
+            num(self.bound.power),
+            num(self.bound.certified_upper),
+            self.bound.relative_gap,
+            num(self.bound.headroom),
+            num(self.benefit),
+            num(self.maintenance_cost),
+            self.route
+        ));
+        let mut dist = Table::new(&[
+            ("state", Align::Left),
+            ("baseline p", Align::Right),
+            ("optimal p", Align::Right),
+        ]);
+        for (b, o) in self
+            .baseline_distribution
+            .iter()
+            .zip(&self.optimal_distribution)
+        {
+            dist.row(vec![b.name.clone(), sci(b.probability), sci(o.probability)]);
+        }
+        out.push_str(&dist.render());
+        match &self.design {
+            None => out.push_str("\n  No headroom: added pathways cannot raise the harvesting power of this network.\n"),
+            Some(d) => {
+                out.push_str(&format!("\nAttaining design at {} of the headroom (fewest pathways; tree design):\n", percent(self.target_fraction)));
+                out.push_str(&design_text(d, p));
+                let mut speed = Table::new(&[("share of headroom", Align::Right), (&format!("largest added rate /{t}"), Align::Right)]);
+                for row in &self.speed_table {
+                    speed.row(vec![percent(row.fraction), row.speed.map_or("not reached".into(), num)]);
+                }
+                out.push_str("\nHow fast the added pathways must be:\n");
+                out.push_str(&speed.render());
+            }
+        }
+        if let Some(c) = &self.rate_capped {
+            out.push_str(&format!(
+                "\nBest design with every added rate <= {} /{t} (exact convex program):\n",
+                num(c.rate_cap)
+            ));
+            out.push_str(&design_text(&c.design, p));
+        }
+        out
+    }
+}
+
+fn design_text(d: &DesignJson, power_unit: &str) -> String {
+    let mut table = Table::new(&[
+        ("pathway", Align::Left),
+        ("forward", Align::Right),
+        ("backward", Align::Right),
+        ("work/jump", Align::Right),
+    ]);
+    for pw in &d.pathways {
+        table.row(vec![
+            format!("{} -> {}", pw.from, pw.to),
+            num(pw.forward),
+            num(pw.backward),
+            num(pw.work),
+        ]);
+    }
+    let mut out = table.render();
+    out.push_str(&format!(
+        "  verified power {} {power_unit} ({} of headroom; construction predicts {})\n",
+        num(d.achieved_power),
+        d.fraction_of_headroom.map_or("n/a".into(), percent),
+        num(d.predicted_power)
+    ));
+    out
+}

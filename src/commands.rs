@@ -125,7 +125,7 @@ pub const SPEED_TABLE_FRACTIONS: [f64; 4] = [0.5, 0.9, 0.99, 0.999];
 /// `ergopath bound`: certified bound, attaining design, speed table, capped design.
 pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
     use crate::bound::{self, design, BoundSettings};
-    use crate::report::bound::{BoundReport, VerifiedDesign};
+    use crate::report::bound::BoundReport;
     let model = Model::load(path)?;
     if !(request.target > 0.0 && request.target < 1.0) {
         return Err(Error::Usage(format!(
@@ -148,40 +148,10 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
     }
     let net = &model.network;
     let solved = bound::solve(net, &pairs, &BoundSettings::default())?;
-    let headroom = solved.headroom();
-    let has_headroom = headroom > 1e-12 * solved.power.abs().max(net.max_rate() * 1e-300);
-    let (mut design_out, mut speeds) = (None, Vec::new());
-    if has_headroom {
-        let tree = design::TreeDesign::new(net, &solved, &pairs);
-        speeds = SPEED_TABLE_FRACTIONS
-            .iter()
-            .map(|&f| (f, tree.speed_for(net, solved.baseline_power, headroom, f)))
-            .collect();
-        if let Some(speed) = tree.speed_for(net, solved.baseline_power, headroom, request.target) {
-            let (pathways, predicted_power) = tree
-                .at_speed(net, speed)
-                .expect("speed_for returns a reachable speed");
-            let achieved_power = design::verify(net, &pathways)?;
-            design_out = Some(VerifiedDesign {
-                pathways,
-                predicted_power,
-                achieved_power,
-            });
-        }
-    }
+    let (attaining, speeds) =
+        design::attaining(net, &solved, &pairs, request.target, &SPEED_TABLE_FRACTIONS)?;
     let capped = match rate_cap {
-        Some(cap) => {
-            let (pathways, predicted_power) = design::capped_design(net, &pairs, cap)?;
-            let achieved_power = design::verify(net, &pathways)?;
-            Some((
-                cap,
-                VerifiedDesign {
-                    pathways,
-                    predicted_power,
-                    achieved_power,
-                },
-            ))
-        }
+        Some(cap) => Some((cap, design::capped_design(net, &pairs, cap)?)),
         None => None,
     };
     let pairs_text = match &pairs {
@@ -196,7 +166,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         &model,
         &solved,
         pairs_text,
-        design_out.as_ref(),
+        attaining.as_ref(),
         request.target,
         &speeds,
         capped.as_ref().map(|(c, d)| (*c, d)),

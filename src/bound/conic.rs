@@ -105,9 +105,8 @@ impl Program {
 /// Adds the entropic cones of `Phi`: variables `p` at 0..n, one `t` per jump from `first_t`.
 /// Returns the objective coefficients (minimise `-Phi`).
 fn entropic_part(program: &mut Program, objective: &Objective, q: &mut [f64], first_t: usize) {
-    let n = objective.n;
-    for k in 0..n {
-        q[k] = -objective.work_gradient[k];
+    for (qk, a) in q.iter_mut().zip(&objective.work_gradient) {
+        *qk = -a;
     }
     for (e, jump) in objective.jumps.iter().enumerate() {
         // term r p_j ln(p_j / (c p_i)), j = source, i = target, c = peq_j / peq_i

@@ -50,13 +50,91 @@ impl Pathway {
     }
 }
 
-/// Total harvesting power of the baseline plus `pathways`, from an independent steady-state
-/// solve of the joint network (kT per time unit).
-pub fn verify(network: &Network, pathways: &[Pathway]) -> Result<f64, SolveError> {
+/// The outcome of verifying a design by an independent steady-state solve.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Verified {
+    /// Total harvesting power of baseline plus added pathways (kT per time unit).
+    pub power: f64,
+    /// Round-off bound of `power`: net fluxes are differences of one-way fluxes, each known to
+    /// a relative `8 n eps` (GTH keeps probabilities to a small multiple of `n eps`), so the
+    /// power is uncertain by about `8 n eps sum_c (k+ p_a + k- p_b) |w_c|`. Fast pathways make
+    /// this large: it is the price of verifying a near-limit design in floating point.
+    pub roundoff: f64,
+}
+
+/// Power of the baseline plus `pathways`, from an independent steady-state solve of the joint
+/// network, with its round-off bound.
+pub fn verify(network: &Network, pathways: &[Pathway]) -> Result<Verified, SolveError> {
     let extra: Vec<Channel> = pathways.iter().map(Pathway::channel).collect();
     let joint = network.with_channels(&extra);
-    let state = steady::solve(&joint, &SteadySettings::default())?;
-    Ok(steady::observe(&joint, &state.probabilities).power)
+    let p = steady::solve(&joint, &SteadySettings::default())?.probabilities;
+    let traffic: f64 = joint
+        .channels
+        .iter()
+        .map(|c| (c.forward * p[c.from] + c.backward * p[c.to]) * c.work.abs())
+        .sum();
+    Ok(Verified {
+        power: steady::observe(&joint, &p).power,
+        roundoff: 8.0 * joint.len() as f64 * f64::EPSILON * traffic,
+    })
+}
+
+/// A design with the power its construction predicts and the power verified independently.
+#[derive(Debug, Clone)]
+pub struct VerifiedDesign {
+    pub pathways: Vec<Pathway>,
+    pub predicted_power: f64,
+    pub verified: Verified,
+}
+
+impl VerifiedDesign {
+    pub fn check(
+        network: &Network,
+        pathways: Vec<Pathway>,
+        predicted_power: f64,
+    ) -> Result<Self, SolveError> {
+        let verified = verify(network, &pathways)?;
+        Ok(Self {
+            pathways,
+            predicted_power,
+            verified,
+        })
+    }
+}
+
+/// The attaining tree design at `target` share of the headroom (verified), and the speed needed
+/// for each share in `fractions`. `None` and an empty table when there is no headroom.
+pub fn attaining(
+    network: &Network,
+    bound: &Bound,
+    pairs: &PairSelection,
+    target: f64,
+    fractions: &[f64],
+) -> Result<(Option<VerifiedDesign>, Vec<(f64, Option<f64>)>), SolveError> {
+    let headroom = bound.headroom();
+    if !(headroom > 1e-12 * bound.power.abs().max(network.max_rate() * 1e-300)) {
+        return Ok((None, Vec::new()));
+    }
+    let tree = TreeDesign::new(network, bound, pairs);
+    let speeds = fractions
+        .iter()
+        .map(|&f| {
+            (
+                f,
+                tree.speed_for(network, bound.baseline_power, headroom, f),
+            )
+        })
+        .collect();
+    let design = match tree.speed_for(network, bound.baseline_power, headroom, target) {
+        Some(speed) => {
+            let (pathways, predicted) = tree
+                .at_speed(network, speed)
+                .expect("speed_for returns a reachable speed");
+            Some(VerifiedDesign::check(network, pathways, predicted)?)
+        }
+        None => None,
+    };
+    Ok((design, speeds))
 }
 
 /// The fewest pathways that hold `p` stationary: a tree over the states that routes the net
@@ -147,9 +225,10 @@ impl TreeDesign {
     pub fn at_speed(&self, network: &Network, speed: f64) -> Option<(Vec<Pathway>, f64)> {
         let mut pathways = Vec::with_capacity(self.edges.len());
         let mut loss = 0.0;
-        let traffic_floor = 1e-14 * self.edges.iter().map(|e| e.2.abs()).fold(0.0, f64::max);
         for &(a, b, j) in &self.edges {
-            if j.abs() <= traffic_floor {
+            // A tiny net flux may be all that holds an improbable state at p*: only an exactly
+            // zero flux needs no pathway.
+            if j == 0.0 {
                 continue;
             }
             let (pa, pb) = (self.p[a], self.p[b]);
@@ -222,12 +301,12 @@ pub fn candidates(n: usize, pairs: &PairSelection) -> Vec<Candidate> {
 }
 
 /// The exact best design with every added rate at most `cap` (pathways with negligible traffic
-/// dropped), and the power the convex program predicts for it.
+/// dropped), verified.
 pub fn capped_design(
     network: &Network,
     pairs: &PairSelection,
     cap: f64,
-) -> Result<(Vec<Pathway>, f64), SolveError> {
+) -> Result<VerifiedDesign, SolveError> {
     let objective = Objective::new(network);
     let list = candidates(network.len(), pairs);
     let solution = conic::capped(&objective, &list, cap)?;
@@ -257,5 +336,5 @@ pub fn capped_design(
         let backward = (g / solution.p[c.b]).min(cap);
         pathways.push(Pathway::with_rates(network, c.a, c.b, forward, backward));
     }
-    Ok((pathways, predicted))
+    VerifiedDesign::check(network, pathways, predicted)
 }

@@ -4,7 +4,7 @@
 
 use super::table::{num, percent, sci, Align, Table};
 use super::{named_distribution, StateProbability, UnitsJson};
-use crate::bound::design::Pathway;
+use crate::bound::design::VerifiedDesign;
 use crate::bound::Bound;
 use crate::model::Model;
 use serde::Serialize;
@@ -31,6 +31,8 @@ pub struct PathwayJson {
 pub struct DesignJson {
     pub pathways: Vec<PathwayJson>,
     pub achieved_power: f64,
+    /// Round-off bound of `achieved_power` (fast pathways make it grow).
+    pub achieved_power_roundoff: f64,
     pub fraction_of_headroom: Option<f64>,
     /// What the construction predicts (fast-limit formula or convex program).
     pub predicted_power: f64,
@@ -70,19 +72,12 @@ pub struct BoundReport {
     pub rate_capped: Option<CappedJson>,
 }
 
-/// A design as computed (kT units) with its verified power, before unit conversion.
-pub struct VerifiedDesign {
-    pub pathways: Vec<Pathway>,
-    pub predicted_power: f64,
-    pub achieved_power: f64,
-}
-
-impl VerifiedDesign {
-    fn json(&self, model: &Model, bound: &Bound) -> DesignJson {
+impl DesignJson {
+    fn new(d: &VerifiedDesign, model: &Model, bound: &Bound) -> Self {
         let u = &model.units;
         let headroom = bound.headroom();
         DesignJson {
-            pathways: self
+            pathways: d
                 .pathways
                 .iter()
                 .map(|p| PathwayJson {
@@ -93,11 +88,12 @@ impl VerifiedDesign {
                     work: u.from_kt(p.work),
                 })
                 .collect(),
-            achieved_power: u.from_kt(self.achieved_power),
+            achieved_power: u.from_kt(d.verified.power),
+            achieved_power_roundoff: u.from_kt(d.verified.roundoff),
             fraction_of_headroom: (headroom > 0.0)
-                .then(|| (self.achieved_power - bound.baseline_power) / headroom),
-            predicted_power: u.from_kt(self.predicted_power),
-            largest_rate: self
+                .then(|| (d.verified.power - bound.baseline_power) / headroom),
+            predicted_power: u.from_kt(d.predicted_power),
+            largest_rate: d
                 .pathways
                 .iter()
                 .map(|p| p.forward.max(p.backward))
@@ -134,7 +130,7 @@ impl BoundReport {
             maintenance_cost: u.from_kt(bound.maintenance),
             optimal_distribution: named_distribution(model, &bound.p),
             baseline_distribution: named_distribution(model, &bound.baseline),
-            design: design.map(|d| d.json(model, bound)),
+            design: design.map(|d| DesignJson::new(d, model, bound)),
             target_fraction,
             speed_table: speeds
                 .iter()
@@ -142,7 +138,7 @@ impl BoundReport {
                 .collect(),
             rate_capped: capped.map(|(rate_cap, d)| CappedJson {
                 rate_cap,
-                design: d.json(model, bound),
+                design: DesignJson::new(d, model, bound),
             }),
         }
     }
@@ -219,8 +215,9 @@ fn design_text(d: &DesignJson, power_unit: &str) -> String {
     }
     let mut out = table.render();
     out.push_str(&format!(
-        "  verified power {} {power_unit} ({} of headroom; construction predicts {})\n",
+        "  verified power {} +- {:.1e} {power_unit} ({} of headroom; construction predicts {})\n",
         num(d.achieved_power),
+        d.achieved_power_roundoff,
         d.fraction_of_headroom.map_or("n/a".into(), percent),
         num(d.predicted_power)
     ));

@@ -1,5 +1,6 @@
 //! All integration tests, one binary grouped by topic.
 
+mod bound;
 mod common;
 mod errors;
 mod published;

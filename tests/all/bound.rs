@@ -1,0 +1,299 @@
+//! The universal bound: its safety (no added pathways ever beat the certificate), its tightness
+//! (the tree design reaches it), the closed form of the theory note, and the capped design.
+
+use crate::common::{close, load, parse};
+use ergopath::bound::design::{self, Pathway, TreeDesign};
+use ergopath::bound::{self, BoundSettings};
+use ergopath::model::{Channel, Network, PairSelection};
+use ergopath::steady::{self, SteadySettings};
+use proptest::prelude::*;
+
+/// A random irreducible network: ring plus chords, energies within +-10 kT, rates 1e-3..1e3,
+/// drives and work labels of a few kT.
+fn network_strategy() -> impl Strategy<Value = Network> {
+    (3usize..=8).prop_flat_map(|n| {
+        let energies = prop::collection::vec(-10.0f64..10.0, n);
+        let edges = prop::collection::vec(
+            (0..n, 0..n, -3.0f64..3.0, -3.0f64..3.0, -3.0f64..3.0),
+            n..2 * n + 1,
+        );
+        (energies, edges).prop_map(move |(energies, edges)| {
+            let mut channels = Vec::new();
+            let mut push = |from: usize, to: usize, log_rate: f64, drive: f64, work: f64| {
+                let forward = 10f64.powf(log_rate);
+                let backward = forward * (-(energies[from] - energies[to] + drive - work)).exp();
+                channels.push(Channel {
+                    from,
+                    to,
+                    forward,
+                    backward,
+                    work,
+                    drive,
+                });
+            };
+            for (i, &(_, _, lr, d, w)) in edges.iter().enumerate().take(n) {
+                push(i, (i + 1) % n, lr, d, w); // the ring keeps it irreducible
+            }
+            for &(a, b, lr, d, w) in edges.iter().skip(n) {
+                if a != b {
+                    push(a, b, lr, d, w);
+                }
+            }
+            Network {
+                energies: energies.clone(),
+                channels,
+            }
+        })
+    })
+}
+
+/// Random added pathways (d = 0, LDB by construction): pairs and log-rates.
+fn pathways_strategy() -> impl Strategy<Value = Vec<(usize, usize, f64, f64)>> {
+    prop::collection::vec((0usize..8, 0usize..8, -3.0f64..4.0, -3.0f64..4.0), 1..6)
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 1500, ..ProptestConfig::default() })]
+
+    /// Theory note, section 3: for ANY added pathways obeying LDB with zero drive, the total
+    /// power at the joint steady state is at most Phi*, hence at most the certified upper value.
+    #[test]
+    fn no_added_pathways_beat_the_certified_bound(net in network_strategy(), added in pathways_strategy()) {
+        let n = net.len();
+        let b = bound::solve(&net, &PairSelection::All, &BoundSettings::default()).unwrap();
+        prop_assert!(b.certified_upper >= b.power);
+        prop_assert!(b.power >= b.baseline_power - 1e-9 * b.baseline_power.abs().max(1e-12));
+        let pathways: Vec<Pathway> = added
+            .iter()
+            .filter(|(a, c, _, _)| a % n != c % n)
+            .map(|&(a, c, lf, lb)| Pathway::with_rates(&net, a % n, c % n, 10f64.powf(lf), 10f64.powf(lb)))
+            .collect();
+        let verified = design::verify(&net, &pathways).unwrap();
+        let power = verified.power;
+        let slack = verified.roundoff + 1e-9 * (b.certified_upper.abs() + power.abs()) + 1e-12 * net.max_rate();
+        prop_assert!(power <= b.certified_upper + slack, "power {} > certified {}", power, b.certified_upper);
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 300, ..ProptestConfig::default() })]
+
+    /// Theory note, section 4: the tree design holds p* stationary and tends to the bound as
+    /// its traffic grows; at large traffic it reaches >= 99.9% of the headroom, verified by an
+    /// independent steady-state solve, with the free-energy balance of the joint network intact.
+    #[test]
+    fn tree_design_reaches_the_bound_at_large_traffic(net in network_strategy()) {
+        let b = bound::solve(&net, &PairSelection::All, &BoundSettings::default()).unwrap();
+        let headroom = b.headroom();
+        prop_assume!(headroom > 1e-9 * b.power.abs().max(1e-6));
+        let tree = TreeDesign::new(&net, &b, &PairSelection::All);
+        let speed = tree.speed_for(&net, b.baseline_power, headroom, 0.9995).unwrap();
+        let (pathways, predicted) = tree.at_speed(&net, speed).unwrap();
+        prop_assert!(pathways.len() < net.len());
+        let joint = net.with_channels(&pathways.iter().map(Pathway::channel).collect::<Vec<_>>());
+        let state = steady::solve(&joint, &SteadySettings::default()).unwrap();
+        let obs = steady::observe(&joint, &state.probabilities);
+        let fraction = (obs.power - b.baseline_power) / headroom;
+        prop_assert!(fraction >= 0.999 - roundoff_share(&net, &pathways, headroom), "reached {} of the headroom", fraction);
+        // Prediction Phi(p) - sum J ln(f/g) against the independent solve, to 1e-5 of the
+        // headroom plus the solve's own round-off bound.
+        let roundoff = design::verify(&net, &pathways).unwrap().roundoff;
+        prop_assert!(close(obs.power, predicted, 1e-9, 1e-5 * headroom + roundoff), "verified {} predicted {} headroom {} base {} speed {}", obs.power, predicted, headroom, b.baseline_power, speed);
+        // Free-energy bookkeeping D - W = kT sigma, to round-off of the gross traffic (fast
+        // pathways make net fluxes small differences of large one-way fluxes).
+        let p = &state.probabilities;
+        let roundoff: f64 = joint.channels.iter().map(|c| {
+            let (x, y) = (c.forward * p[c.from], c.backward * p[c.to]);
+            (x + y) * (c.work.abs() + c.drive.abs() + (x / y).ln().abs())
+        }).sum::<f64>() * 1e-12;
+        prop_assert!((obs.drive_power - obs.power - obs.entropy_production).abs() <= roundoff);
+        for (x, y) in state.probabilities.iter().zip(&b.p) {
+            prop_assert!(close(*x, *y, 1e-6, 1e-12), "joint steady state {:?} vs p* {:?}", state.probabilities, b.p);
+        }
+    }
+}
+
+/// Round-off of a verified design's power as a share of the headroom.
+fn roundoff_share(net: &Network, pathways: &[Pathway], headroom: f64) -> f64 {
+    design::verify(net, pathways).unwrap().roundoff / headroom
+}
+
+/// Ring of n states, all rates k, equal energies, one step storing theta and drawing theta:
+/// headroom -> theta^2 k (n - 1) / (4 n^2 kT) as theta -> 0 (theory note, section 6, derived
+/// there). Checked at theta = 1e-2 kT for n = 3, 6, 12, and the theta^2 and 1/n scaling.
+#[test]
+fn ring_headroom_matches_the_small_drive_closed_form() {
+    let ring = |n: usize, k: f64, theta: f64| {
+        let mut text = String::new();
+        for i in 0..n {
+            text += &format!("[[state]]\nname = \"s{i}\"\n");
+        }
+        for i in 0..n {
+            let labels = if i == 0 {
+                format!("drive = {theta}\nwork = {theta}\n")
+            } else {
+                "drive = 0\n".into()
+            };
+            text += &format!(
+                "[[transition]]\nfrom = \"s{i}\"\nto = \"s{}\"\nforward = {k}\n{labels}",
+                (i + 1) % n
+            );
+        }
+        let model = parse(&text);
+        bound::solve(
+            &model.network,
+            &PairSelection::All,
+            &BoundSettings::default(),
+        )
+        .unwrap()
+        .headroom()
+    };
+    for n in [3usize, 6, 12] {
+        let (k, theta) = (2.5, 1e-2);
+        let exact = theta * theta * k * (n as f64 - 1.0) / (4.0 * (n * n) as f64);
+        let h = ring(n, k, theta);
+        assert!(close(h, exact, 1e-4, 0.0), "n = {n}: {h} vs {exact}");
+    }
+    let (a, b) = (ring(6, 1.0, 1e-3), ring(6, 1.0, 2e-3));
+    assert!(close(b / a, 4.0, 1e-4, 0.0), "theta^2 scaling: {}", b / a);
+    let (r10, r20) = (ring(10, 1.0, 1e-3), ring(20, 1.0, 1e-3));
+    // (n-1)/n^2: 9/100 vs 19/400, i.e. the 1/n fall at large n
+    assert!(close(r10 / r20, (9.0 / 100.0) / (19.0 / 400.0), 1e-4, 0.0));
+}
+
+/// The exact capped design (convex program) against a brute-force grid over one pathway's two
+/// rates on a 4-state model, each grid point scored by an independent steady-state solve.
+#[test]
+fn capped_design_equals_a_brute_force_grid_search() {
+    let model = load("problems/walker.toml");
+    let net = &model.network;
+    let (a, b) = (
+        model.state_index("empty").unwrap(),
+        model.state_index("stepped").unwrap(),
+    );
+    let pairs = PairSelection::Only(vec![(a.min(b), a.max(b))]);
+    let cap = 200.0;
+    let capped = design::capped_design(net, &pairs, cap).unwrap();
+    let (ours, predicted) = (capped.verified.power, capped.predicted_power);
+    assert!(
+        close(ours, predicted, 1e-6, 0.0),
+        "{ours} vs predicted {predicted}"
+    );
+    let score = |lf: f64, lb: f64| {
+        let (from, to) = (a.min(b), a.max(b));
+        design::verify(
+            net,
+            &[Pathway::with_rates(
+                net,
+                from,
+                to,
+                cap * 10f64.powf(lf),
+                cap * 10f64.powf(lb),
+            )],
+        )
+        .unwrap()
+        .power
+    };
+    // Grid over log10(rate / cap) in [-6, 0] for both rates with 0.01-decade steps (the gain is
+    // a narrow ridge: it changes sign within 0.03 decades), then a fine grid around its best.
+    let mut best = (f64::NEG_INFINITY, 0.0, 0.0);
+    for i in 0..=600 {
+        for j in 0..=600 {
+            let (lf, lb) = (-6.0 + 0.01 * i as f64, -6.0 + 0.01 * j as f64);
+            let s = score(lf, lb);
+            if s > best.0 {
+                best = (s, lf, lb);
+            }
+        }
+    }
+    let (_, cf, cb) = best;
+    for i in -40..=40 {
+        for j in -40..=40 {
+            let (lf, lb) = (
+                (cf + 0.0005 * i as f64).min(0.0),
+                (cb + 0.0005 * j as f64).min(0.0),
+            );
+            let s = score(lf, lb);
+            if s > best.0 {
+                best = (s, lf, lb);
+            }
+        }
+    }
+    let baseline = steady::observe(
+        net,
+        &steady::solve(net, &SteadySettings::default())
+            .unwrap()
+            .probabilities,
+    )
+    .power;
+    let gain = best.0 - baseline;
+    assert!(gain > 0.0);
+    assert!(
+        ours >= best.0 - 1e-6 * gain,
+        "convex {ours} below grid {}",
+        best.0
+    );
+    assert!(
+        ours <= best.0 + 1e-4 * gain,
+        "convex {ours} above grid {}: not a feasible optimum?",
+        best.0
+    );
+}
+
+/// As the cap grows the capped design tends to the universal bound (theory note, section 5).
+#[test]
+fn capped_design_tends_to_the_bound() {
+    let model = load("problems/ring6.toml");
+    let net = &model.network;
+    let b = bound::solve(net, &PairSelection::All, &BoundSettings::default()).unwrap();
+    let mut last = f64::NEG_INFINITY;
+    for cap in [10.0, 100.0, 1e3, 1e4] {
+        let power = design::capped_design(net, &PairSelection::All, cap)
+            .unwrap()
+            .verified
+            .power;
+        assert!(power <= b.certified_upper * (1.0 + 1e-9));
+        assert!(power >= last - 1e-7 * b.power, "not monotone at cap {cap}");
+        last = power;
+    }
+    assert!(
+        (last - b.baseline_power) / b.headroom() > 0.99,
+        "cap 1e4 reaches only {}",
+        (last - b.baseline_power) / b.headroom()
+    );
+}
+
+/// Every example model: certified to a relative gap of at most 1e-8, topological restriction
+/// never raises the bound, and Newton alone agrees with the conic route.
+#[test]
+fn examples_are_certified_and_restrictions_only_lower_the_bound() {
+    for path in crate::common::all_models() {
+        let model = load(&path);
+        let net = &model.network;
+        let full = bound::solve(net, &PairSelection::All, &BoundSettings::default()).unwrap();
+        assert!(
+            full.relative_gap() <= 1e-8,
+            "{path}: gap {}",
+            full.relative_gap()
+        );
+        let newton = bound::solve(
+            net,
+            &PairSelection::All,
+            &BoundSettings {
+                newton_only: true,
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        assert!(
+            close(newton.power, full.power, 1e-8, 1e-12 * net.max_rate()),
+            "{path}: {} vs {}",
+            newton.power,
+            full.power
+        );
+        let chain = PairSelection::Only((1..net.len()).map(|i| (i - 1, i)).take(1).collect());
+        let restricted = bound::solve(net, &chain, &BoundSettings::default()).unwrap();
+        assert!(restricted.power <= full.certified_upper + 1e-9 * full.power.abs());
+        assert!(restricted.power >= full.baseline_power - 1e-9 * full.power.abs().max(1e-12));
+    }
+}

@@ -166,9 +166,9 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         &model,
         &solved,
         pairs_text,
-        attaining.as_ref(),
+        attaining.design.as_ref(),
         request.target,
-        &speeds,
+        &attaining.speeds,
         capped.as_ref().map(|(c, d)| (*c, d)),
     );
     Ok(match request.format {

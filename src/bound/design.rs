@@ -102,18 +102,28 @@ impl VerifiedDesign {
     }
 }
 
+/// The attaining tree design and its speed table.
+#[derive(Debug, Clone, Default)]
+pub struct Attaining {
+    /// The verified design at the target share; `None` without headroom.
+    pub design: Option<VerifiedDesign>,
+    /// `(share of the headroom, largest added rate needed)`; the rate is `None` if unreachable.
+    pub speeds: Vec<(f64, Option<f64>)>,
+}
+
 /// The attaining tree design at `target` share of the headroom (verified), and the speed needed
-/// for each share in `fractions`. `None` and an empty table when there is no headroom.
+/// for each share in `fractions`. Empty when there is no headroom.
 pub fn attaining(
     network: &Network,
     bound: &Bound,
     pairs: &PairSelection,
     target: f64,
     fractions: &[f64],
-) -> Result<(Option<VerifiedDesign>, Vec<(f64, Option<f64>)>), SolveError> {
+) -> Result<Attaining, SolveError> {
     let headroom = bound.headroom();
-    if !(headroom > 1e-12 * bound.power.abs().max(network.max_rate() * 1e-300)) {
-        return Ok((None, Vec::new()));
+    let has_headroom = headroom > 1e-12 * bound.power.abs().max(network.max_rate() * 1e-300);
+    if !has_headroom {
+        return Ok(Attaining::default());
     }
     let tree = TreeDesign::new(network, bound, pairs);
     let speeds = fractions
@@ -134,7 +144,7 @@ pub fn attaining(
         }
         None => None,
     };
-    Ok((design, speeds))
+    Ok(Attaining { design, speeds })
 }
 
 /// The fewest pathways that hold `p` stationary: a tree over the states that routes the net

@@ -148,7 +148,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
     }
     let net = &model.network;
     let solved = bound::solve(net, &pairs, &BoundSettings::default())?;
-    let (attaining, speeds) =
+    let attaining =
         design::attaining(net, &solved, &pairs, request.target, &SPEED_TABLE_FRACTIONS)?;
     let capped = match rate_cap {
         Some(cap) => Some((cap, design::capped_design(net, &pairs, cap)?)),

@@ -7,6 +7,9 @@ balance of the model format independently of the Rust code, then computes:
 * the steady state and per-transition fluxes, powers and entropy production with mpmath
   (arbitrary precision, 50 digits: every probability to full relative accuracy), cross-checked
   against scipy's sparse LU of the generator with one row and column eliminated;
+* the universal bound max_p Phi(p) with cvxpy and its Clarabel back-end, in the natural
+  formulation W(p) - sum r_ij rel_entr(p_j, c_ij p_i) over the simplex, with the solver's status
+  (values rounded to 7 significant digits so the fixture does not depend on the last bits);
 
 and writes them to tests/fixtures/reference/<model>.json. It also (re)writes the seeded random
 models in tests/fixtures/models/. `cargo test` only reads these files; CI re-runs this script in
@@ -22,6 +25,7 @@ import sys
 import tomllib
 from pathlib import Path
 
+import cvxpy as cp
 import mpmath as mp
 import numpy as np
 import scipy.sparse as sp
@@ -143,6 +147,39 @@ def reference_steady(path):
     }
 
 
+def bound_cvxpy(path):
+    """Phi* = max W(p) + sum_i (R p)_i ln(p_i / peq_i) over the simplex, in kT per time unit."""
+    model = load_model(path)
+    n = len(model["names"])
+    energy = np.array([float(e) for e in model["energy"]])
+    rates = {}
+    work_gradient = np.zeros(n)
+    for a, b, kf, kb, work, _ in model["channels"]:
+        rates[(a, b)] = rates.get((a, b), 0.0) + float(kf)  # jump a -> b
+        rates[(b, a)] = rates.get((b, a), 0.0) + float(kb)
+        work_gradient[a] += float(work * kf)
+        work_gradient[b] -= float(work * kb)
+    source = np.array([j for (j, i) in rates])
+    target = np.array([i for (j, i) in rates])
+    r = np.array(list(rates.values()))
+    # c_ij = peq_j / peq_i = exp(E_i - E_j) for the jump j -> i
+    c = np.exp(energy[target] - energy[source])
+    p = cp.Variable(n)
+    objective = work_gradient @ p - r @ cp.rel_entr(p[source], cp.multiply(c, p[target]))
+    problem = cp.Problem(cp.Maximize(objective), [cp.sum(p) == 1])
+    try:
+        problem.solve(solver=cp.CLARABEL)
+        status, value = problem.status, problem.value
+    except cp.error.SolverError as e:
+        status, value = f"solver error: {str(e).splitlines()[0]}", None
+    finite = value is not None and math.isfinite(value)
+    return {
+        "status": status,
+        "value_kT": float(f"{value:.7g}") if finite else None,
+        "finite": finite,
+    }
+
+
 def random_model_text(seed):
     """A connected random network: a random spanning tree plus extra chords."""
     rng = np.random.default_rng(seed)
@@ -183,7 +220,11 @@ def main():
         (MODELS / f"random{seed}.toml").write_text(random_model_text(seed))
     paths = sorted((ROOT / "problems").glob("*.toml")) + sorted(MODELS.glob("*.toml"))
     for path in paths:
-        result = {"model": str(path.relative_to(ROOT)), "steady": reference_steady(path)}
+        result = {
+            "model": str(path.relative_to(ROOT)),
+            "steady": reference_steady(path),
+            "bound_cvxpy": bound_cvxpy(path),
+        }
         (OUT / f"{path.stem}.json").write_text(json.dumps(result, indent=1) + "\n")
         print(f"{path.relative_to(ROOT)}: reference written")
     return 0

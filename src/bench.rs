@@ -135,6 +135,63 @@ pub fn time_steady(
     Ok(rows)
 }
 
+/// One row of the bound benchmark.
+#[derive(Debug, Clone)]
+pub struct BoundTiming {
+    pub family: Family,
+    pub states: usize,
+    pub route: &'static str,
+    pub seconds: f64,
+    pub relative_gap: f64,
+    pub headroom: f64,
+}
+
+/// Times the certified bound (all pairs) by each route: Newton alone from the baseline steady
+/// state, and the conic program with Newton polish (only up to `conic_limit` states).
+pub fn time_bound(
+    sizes: &[usize],
+    families: &[Family],
+    runs: usize,
+    conic_limit: usize,
+) -> Result<Vec<BoundTiming>, SolveError> {
+    use crate::bound::{self, BoundSettings};
+    use crate::model::PairSelection;
+    let mut rows = Vec::new();
+    for &family in families {
+        for &n in sizes {
+            if family == Family::RandomChords && n > RANDOM_CHORDS_LIMIT {
+                continue;
+            }
+            let net = synthetic(family, n, 2024 + n as u64);
+            for newton_only in [true, false] {
+                if !newton_only && n > conic_limit {
+                    continue;
+                }
+                let settings = BoundSettings {
+                    newton_only,
+                    ..Default::default()
+                };
+                let (seconds, result) =
+                    median_seconds(runs, || bound::solve(&net, &PairSelection::All, &settings));
+                let b = result?;
+                rows.push(BoundTiming {
+                    family,
+                    states: n,
+                    route: if newton_only {
+                        "newton"
+                    } else {
+                        "conic+newton"
+                    },
+                    seconds,
+                    relative_gap: b.relative_gap(),
+                    headroom: b.headroom(),
+                });
+            }
+        }
+    }
+    Ok(rows)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

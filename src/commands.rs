@@ -61,17 +61,34 @@ pub fn steady(path: &Path, format: Format) -> Result<String, Error> {
     })
 }
 
-/// `ergopath bench`: steady-state timings on the seeded synthetic families; the table is
-/// returned and also written to `<out_dir>/steady.csv`.
-pub fn bench(sizes: &[usize], runs: usize, out_dir: &Path) -> Result<String, Error> {
-    use crate::bench::{time_steady, Family};
+/// What `ergopath bench` times.
+#[derive(Debug, Clone)]
+pub struct BenchRequest {
+    /// Sizes for the steady-state timings.
+    pub steady_sizes: Vec<usize>,
+    /// Sizes for the bound timings.
+    pub bound_sizes: Vec<usize>,
+    /// Largest network given to the conic route.
+    pub conic_limit: usize,
+    pub runs: usize,
+    /// Folder for `steady.csv` and `bound.csv`.
+    pub out_dir: std::path::PathBuf,
+}
+
+/// `ergopath bench`: timings on the seeded synthetic families, printed and written as CSV.
+pub fn bench(request: &BenchRequest) -> Result<String, Error> {
+    use crate::bench::{time_bound, time_steady, Family};
+    use crate::report::output::write_atomic;
     use crate::report::table::{Align, Table};
-    if let Some(&bad) = sizes.iter().find(|&&n| n < 4) {
+    let sizes = request.steady_sizes.iter().chain(&request.bound_sizes);
+    if let Some(&bad) = sizes.into_iter().find(|&&n| n < 4) {
         return Err(Error::Usage(format!(
             "benchmark size {bad} is too small: give sizes of at least 4 states"
         )));
     }
-    let rows = time_steady(sizes, &[Family::Banded, Family::RandomChords], runs)?;
+    let families = [Family::Banded, Family::RandomChords];
+    let runs = request.runs.max(1);
+    let steady_rows = time_steady(&request.steady_sizes, &families, runs)?;
     let mut table = Table::new(&[
         ("family", Align::Left),
         ("states", Align::Right),
@@ -80,7 +97,7 @@ pub fn bench(sizes: &[usize], runs: usize, out_dir: &Path) -> Result<String, Err
         ("residual", Align::Right),
     ]);
     let mut csv = String::from("family,states,median_seconds,method,relative_residual\n");
-    for r in &rows {
+    for r in &steady_rows {
         table.row(vec![
             r.family.name().into(),
             r.states.to_string(),
@@ -97,13 +114,46 @@ pub fn bench(sizes: &[usize], runs: usize, out_dir: &Path) -> Result<String, Err
             r.relative_residual
         ));
     }
-    let path = out_dir.join("steady.csv");
-    crate::report::output::write_atomic(&path, csv.as_bytes())?;
+    let steady_path = request.out_dir.join("steady.csv");
+    write_atomic(&steady_path, csv.as_bytes())?;
+    let bound_rows = time_bound(&request.bound_sizes, &families, runs, request.conic_limit)?;
+    let mut bound_table = Table::new(&[
+        ("family", Align::Left),
+        ("states", Align::Right),
+        ("route", Align::Left),
+        ("median s", Align::Right),
+        ("rel. gap", Align::Right),
+    ]);
+    let mut bound_csv =
+        String::from("family,states,route,median_seconds,relative_gap,headroom_kT\n");
+    for r in &bound_rows {
+        bound_table.row(vec![
+            r.family.name().into(),
+            r.states.to_string(),
+            r.route.into(),
+            format!("{:.4}", r.seconds),
+            format!("{:.1e}", r.relative_gap),
+        ]);
+        bound_csv.push_str(&format!(
+            "{},{},{},{:e},{:e},{:e}\n",
+            r.family.name(),
+            r.states,
+            r.route,
+            r.seconds,
+            r.relative_gap,
+            r.headroom
+        ));
+    }
+    let bound_path = request.out_dir.join("bound.csv");
+    write_atomic(&bound_path, bound_csv.as_bytes())?;
     Ok(format!(
-        "Steady-state solve, median of {runs} runs (2n channels each; random chords only up to {} states)\n\n{}\n  written: {}\n",
+        "Steady-state solve, median of {runs} runs (2n channels each; random chords only up to {} states)\n\n{}\nCertified bound, all pairs (conic route up to {} states)\n\n{}\n  written: {}, {}\n",
         crate::bench::RANDOM_CHORDS_LIMIT,
         table.render(),
-        path.display()
+        request.conic_limit,
+        bound_table.render(),
+        steady_path.display(),
+        bound_path.display()
     ))
 }
 

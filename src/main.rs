@@ -56,11 +56,19 @@ enum Command {
         json: bool,
     },
     /// Time the solvers on seeded synthetic networks (banded and random-chord families)
-    #[command(after_help = "Example:\n  ergopath bench --sizes 100,1000,100000 --runs 3")]
+    #[command(
+        after_help = "Example:\n  ergopath bench --sizes 100,1000,100000 --bound-sizes 100,1000,10000 --runs 3"
+    )]
     Bench {
-        /// Network sizes (states), comma separated
+        /// Network sizes (states) for the steady-state timings, comma separated
         #[arg(long, value_delimiter = ',', default_value = "100,1000,10000,100000")]
         sizes: Vec<usize>,
+        /// Network sizes for the bound timings, comma separated
+        #[arg(long, value_delimiter = ',', default_value = "100,1000,10000")]
+        bound_sizes: Vec<usize>,
+        /// Largest network given to the conic (Clarabel) route
+        #[arg(long, default_value_t = 10000)]
+        conic_limit: usize,
         /// Runs per size; the median is reported
         #[arg(long, default_value_t = 3)]
         runs: usize,
@@ -110,7 +118,19 @@ fn main() -> ExitCode {
                 format: if *json { Format::Json } else { Format::Text },
             },
         ),
-        Command::Bench { sizes, runs, out } => commands::bench(sizes, *runs, out),
+        Command::Bench {
+            sizes,
+            bound_sizes,
+            conic_limit,
+            runs,
+            out,
+        } => commands::bench(&commands::BenchRequest {
+            steady_sizes: sizes.clone(),
+            bound_sizes: bound_sizes.clone(),
+            conic_limit: *conic_limit,
+            runs: *runs,
+            out_dir: out.clone(),
+        }),
     };
     match result {
         Ok(text) => print_ignoring_closed_pipe(&text),

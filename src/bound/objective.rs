@@ -81,6 +81,24 @@ impl Objective {
         self.work(p) + self.entropic(p, log_p)
     }
 
+    /// Round-off scale of [`Objective::value`]: the sum of the magnitudes of its terms times
+    /// machine epsilon (a sum of many terms is only known to about this absolute accuracy).
+    pub fn value_roundoff(&self, p: &[f64], log_p: &[f64]) -> f64 {
+        let phi = |i: usize| log_p[i] - self.log_equilibrium[i];
+        let entropic: f64 = self
+            .jumps
+            .iter()
+            .map(|j| (j.rate * p[j.source] * (phi(j.source) - phi(j.target))).abs())
+            .sum();
+        let work: f64 = self
+            .work_gradient
+            .iter()
+            .zip(p)
+            .map(|(a, p)| (a * p).abs())
+            .sum();
+        f64::EPSILON * (entropic + work)
+    }
+
     /// `(R p)_i`: net probability inflow of each state under the baseline.
     pub fn generator_times(&self, p: &[f64]) -> Vec<f64> {
         let mut out: Vec<f64> = (0..self.n).map(|i| -self.exit[i] * p[i]).collect();

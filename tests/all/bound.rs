@@ -297,3 +297,83 @@ fn examples_are_certified_and_restrictions_only_lower_the_bound() {
         assert!(restricted.power >= full.baseline_power - 1e-9 * full.power.abs().max(1e-12));
     }
 }
+
+/// The `bound --json` contract of model-format.md, in the model's units, and LDB with zero drive
+/// for every reported pathway: `work = E_from - E_to - kT ln(forward / backward)`.
+#[test]
+fn bound_json_has_the_documented_keys_and_lawful_pathways() {
+    let out = crate::common::run(&["bound", "problems/walker.toml", "--json", "--target", "0.9"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    for key in [
+        "baseline_power",
+        "bound",
+        "optimal_distribution",
+        "design",
+        "units",
+    ] {
+        assert!(v.get(key).is_some(), "missing {key}");
+    }
+    let f = |x: &serde_json::Value| x.as_f64().unwrap();
+    let bound = &v["bound"];
+    assert!(close(
+        f(&bound["headroom"]),
+        f(&bound["power"]) - f(&v["baseline_power"]),
+        1e-12,
+        0.0
+    ));
+    assert!(f(&bound["certified_upper"]) >= f(&bound["power"]));
+    let total: f64 = v["optimal_distribution"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| f(&s["probability"]))
+        .sum();
+    assert!(close(total, 1.0, 1e-12, 0.0));
+    let design = &v["design"];
+    let fraction = f(&design["fraction_of_headroom"]);
+    assert!((fraction - 0.9).abs() < 1e-6, "fraction {fraction}");
+    assert!(close(
+        (f(&design["achieved_power"]) - f(&v["baseline_power"])) / f(&bound["headroom"]),
+        fraction,
+        1e-12,
+        0.0
+    ));
+    let model = load("problems/walker.toml");
+    let kt_pn_nm = 1.0 / model.units.kt_per_unit(); // 4.1164 pN nm
+    let energy = |name: &serde_json::Value| {
+        let i = model.state_index(name.as_str().unwrap()).unwrap();
+        model.units.from_kt(model.network.energies[i])
+    };
+    let pathways = design["pathways"].as_array().unwrap();
+    assert!(!pathways.is_empty() && pathways.len() < 4);
+    for pw in pathways {
+        let expected = energy(&pw["from"])
+            - energy(&pw["to"])
+            - kt_pn_nm * (f(&pw["forward"]) / f(&pw["backward"])).ln();
+        assert!(close(f(&pw["work"]), expected, 1e-9, 1e-9), "{pw}");
+    }
+}
+
+#[test]
+fn bound_flags_are_checked() {
+    for (args, phrase) in [
+        (vec!["--pairs", "empty/nowhere"], "state 'nowhere'"),
+        (vec!["--pairs", "empty-stepped"], "not of the form FROM/TO"),
+        (vec!["--pairs", "empty/empty"], "joins a state to itself"),
+        (vec!["--target", "1.5"], "between 0 and 1"),
+        (vec!["--rate-cap=-2"], "positive rate"),
+    ] {
+        let mut all = vec!["bound", "problems/walker.toml"];
+        all.extend(args.iter());
+        let out = crate::common::run(&all);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {stderr}");
+        assert!(stderr.contains(phrase), "{args:?}: {stderr}");
+        assert!(out.stdout.is_empty());
+    }
+}

@@ -48,17 +48,73 @@ pub fn check(path: &Path) -> Result<String, Error> {
     Ok(check_text(&model))
 }
 
+/// Writes each `(file name, contents)` into `root/<model stem>/` atomically and returns a line
+/// naming what was written.
+fn save(root: &Path, model: &Model, files: &[(&str, &str)]) -> Result<String, Error> {
+    let dir = root.join(model.stem());
+    let mut written = Vec::with_capacity(files.len());
+    for (name, contents) in files {
+        let path = dir.join(name);
+        crate::report::output::write_atomic(&path, contents.as_bytes())?;
+        written.push(path.display().to_string());
+    }
+    Ok(format!("\n  saved: {}\n", written.join(", ")))
+}
+
+/// A report in every form a command can print or save.
+struct Rendered {
+    text: String,
+    json: String,
+    csv: Option<String>,
+    svg: Option<String>,
+}
+
+/// The printed output in `format`; with `save_root`, every form is also written under
+/// `save_root/<stem>/` as `<name>.txt`, `<name>.json` (and `.csv`, `.svg` when there are some).
+fn emit(
+    model: &Model,
+    name: &str,
+    format: Format,
+    save_root: Option<&Path>,
+    r: Rendered,
+) -> Result<String, Error> {
+    let printed = match format {
+        Format::Text => r.text.clone(),
+        Format::Json => r.json.clone(),
+        Format::Csv => r.csv.clone().unwrap_or_else(|| r.text.clone()),
+    };
+    let Some(root) = save_root else {
+        return Ok(printed);
+    };
+    let names = ["txt", "json", "csv", "svg"].map(|ext| format!("{name}.{ext}"));
+    let forms = [Some(&r.text), Some(&r.json), r.csv.as_ref(), r.svg.as_ref()];
+    let files: Vec<(&str, &str)> = names
+        .iter()
+        .zip(forms)
+        .filter_map(|(n, form)| form.map(|f| (n.as_str(), f.as_str())))
+        .collect();
+    let note = save(root, model, &files)?;
+    // Machine-readable output stays clean; the note only follows the readable report.
+    Ok(if format == Format::Text {
+        printed + &note
+    } else {
+        printed
+    })
+}
+
 /// `ergopath steady`: stationary distribution and power budget.
-pub fn steady(path: &Path, format: Format) -> Result<String, Error> {
+pub fn steady(path: &Path, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
     let model = Model::load(path)?;
     let state = steady::solve(&model.network, &SteadySettings::default())?;
     let obs = steady::observe(&model.network, &state.probabilities);
     let report = SteadyReport::new(&model, &state, &obs);
-    Ok(match format {
-        Format::Text => report.text(&model),
-        Format::Json => to_json(&report)?,
-        Format::Csv => report.csv(),
-    })
+    let rendered = Rendered {
+        text: report.text(&model),
+        json: to_json(&report)?,
+        csv: Some(report.csv()),
+        svg: None,
+    };
+    emit(&model, "steady", format, save_root, rendered)
 }
 
 /// What `ergopath bench` times.
@@ -167,6 +223,8 @@ pub struct BoundRequest {
     /// Share of the headroom the printed design must reach (0 < target < 1).
     pub target: f64,
     pub format: Format,
+    /// Also write the report under `<save_root>/<model stem>/`.
+    pub save_root: Option<std::path::PathBuf>,
 }
 
 /// Shares of the headroom in the speed table.
@@ -219,10 +277,20 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         attaining.design.as_ref(),
         request.target,
         &attaining.speeds,
+        &attaining.curve,
         capped.as_ref().map(|(c, d)| (*c, d)),
     );
-    Ok(match request.format {
-        Format::Json => to_json(&report)?,
-        _ => report.text(),
-    })
+    let rendered = Rendered {
+        text: report.text(),
+        json: to_json(&report)?,
+        csv: None,
+        svg: report.svg(),
+    };
+    emit(
+        &model,
+        "bound",
+        request.format,
+        request.save_root.as_deref(),
+        rendered,
+    )
 }

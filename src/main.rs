@@ -12,7 +12,7 @@ use std::process::ExitCode;
     name = "ergopath",
     version,
     about = "Harvesting power of Markov jump networks, its universal bound, and designs that reach it",
-    after_help = "Example:\n  ergopath check problems/walker.toml\n  ergopath steady problems/walker.toml --json"
+    after_help = "Examples:\n  ergopath check problems/walker.toml\n  ergopath steady problems/walker.toml --json\n  ergopath bound problems/walker.toml --rate-cap 1000 --save"
 )]
 struct Cli {
     #[command(subcommand)]
@@ -34,6 +34,8 @@ enum Command {
         model: PathBuf,
         #[command(flatten)]
         format: FormatFlags,
+        #[command(flatten)]
+        save: SaveFlag,
     },
     /// Universal bound on harvesting power under added pathways, with a design that attains it
     #[command(
@@ -54,6 +56,8 @@ enum Command {
         /// Print one JSON object (keys as in the model-format documentation)
         #[arg(long)]
         json: bool,
+        #[command(flatten)]
+        save: SaveFlag,
     },
     /// Time the solvers on seeded synthetic networks (banded and random-chord families)
     #[command(
@@ -76,6 +80,19 @@ enum Command {
         #[arg(long, default_value = "results/bench")]
         out: PathBuf,
     },
+}
+
+#[derive(Args)]
+struct SaveFlag {
+    /// Also write the report (text, JSON, CSV) to results/<model name>/
+    #[arg(long)]
+    save: bool,
+}
+
+impl SaveFlag {
+    fn root(&self) -> Option<PathBuf> {
+        self.save.then(|| PathBuf::from("results"))
+    }
 }
 
 #[derive(Args)]
@@ -102,13 +119,18 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match &cli.command {
         Command::Check { model } => commands::check(model),
-        Command::Steady { model, format } => commands::steady(model, format.format()),
+        Command::Steady {
+            model,
+            format,
+            save,
+        } => commands::steady(model, format.format(), save.root().as_deref()),
         Command::Bound {
             model,
             pairs,
             rate_cap,
             target,
             json,
+            save,
         } => commands::bound(
             model,
             &commands::BoundRequest {
@@ -116,6 +138,7 @@ fn main() -> ExitCode {
                 rate_cap: *rate_cap,
                 target: *target,
                 format: if *json { Format::Json } else { Format::Text },
+                save_root: save.root(),
             },
         ),
         Command::Bench {

@@ -109,6 +109,8 @@ pub struct Attaining {
     pub design: Option<VerifiedDesign>,
     /// `(share of the headroom, largest added rate needed)`; the rate is `None` if unreachable.
     pub speeds: Vec<(f64, Option<f64>)>,
+    /// `(largest added rate, share of the headroom)` along the tree design, for plotting.
+    pub curve: Vec<(f64, f64)>,
 }
 
 /// The attaining tree design at `target` share of the headroom (verified), and the speed needed
@@ -144,7 +146,28 @@ pub fn attaining(
         }
         None => None,
     };
-    Ok(Attaining { design, speeds })
+    let share = |speed: f64| {
+        tree.at_speed(network, speed)
+            .map(|(_, w)| (w - bound.baseline_power) / headroom)
+    };
+    let span = (
+        tree.speed_for(network, bound.baseline_power, headroom, 0.01),
+        tree.speed_for(network, bound.baseline_power, headroom, 0.9999),
+    );
+    let curve = match span {
+        (Some(lo), Some(hi)) if hi > lo => (0..=60)
+            .filter_map(|k| {
+                let speed = lo * (hi / lo).powf(k as f64 / 60.0);
+                share(speed).map(|f| (speed, f))
+            })
+            .collect(),
+        _ => Vec::new(),
+    };
+    Ok(Attaining {
+        design,
+        speeds,
+        curve,
+    })
 }
 
 /// The fewest pathways that hold `p` stationary: a tree over the states that routes the net

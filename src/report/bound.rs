@@ -70,6 +70,8 @@ pub struct BoundReport {
     pub target_fraction: f64,
     pub speed_table: Vec<SpeedRow>,
     pub rate_capped: Option<CappedJson>,
+    /// `(largest added rate, share of the headroom)` along the tree design.
+    pub speed_curve: Vec<(f64, f64)>,
 }
 
 impl DesignJson {
@@ -111,6 +113,7 @@ impl BoundReport {
         design: Option<&VerifiedDesign>,
         target_fraction: f64,
         speeds: &[(f64, Option<f64>)],
+        curve: &[(f64, f64)],
         capped: Option<(f64, &VerifiedDesign)>,
     ) -> Self {
         let u = &model.units;
@@ -136,6 +139,7 @@ impl BoundReport {
                 .iter()
                 .map(|&(fraction, speed)| SpeedRow { fraction, speed })
                 .collect(),
+            speed_curve: curve.to_vec(),
             rate_capped: capped.map(|(rate_cap, d)| CappedJson {
                 rate_cap,
                 design: DesignJson::new(d, model, bound),
@@ -195,6 +199,68 @@ impl BoundReport {
             out.push_str(&design_text(&c.design, p));
         }
         out
+    }
+}
+
+impl BoundReport {
+    /// Share of the headroom against the largest added rate: the tree design's curve, the speed
+    /// table's points, the exact capped design, and the universal bound as a dashed line.
+    pub fn svg(&self) -> Option<String> {
+        use super::svg::{Chart, Series};
+        if self.speed_curve.is_empty() {
+            return None;
+        }
+        let (lo, hi) = (
+            self.speed_curve[0].0,
+            self.speed_curve[self.speed_curve.len() - 1].0,
+        );
+        let mut series = vec![
+            Series {
+                name: "tree design".into(),
+                points: self.speed_curve.clone(),
+                dashed: false,
+                markers: false,
+                joined: true,
+            },
+            Series {
+                name: "universal bound".into(),
+                points: vec![(lo, 1.0), (hi, 1.0)],
+                dashed: true,
+                markers: false,
+                joined: true,
+            },
+            Series {
+                name: "speed table".into(),
+                points: self
+                    .speed_table
+                    .iter()
+                    .filter_map(|r| r.speed.map(|s| (s, r.fraction)))
+                    .collect(),
+                dashed: false,
+                markers: true,
+                joined: false,
+            },
+        ];
+        if let Some(c) = &self.rate_capped {
+            if let Some(f) = c.design.fraction_of_headroom {
+                series.push(Series {
+                    name: "exact best at cap".into(),
+                    points: vec![(c.rate_cap, f)],
+                    dashed: false,
+                    markers: true,
+                    joined: false,
+                });
+            }
+        }
+        let chart = Chart {
+            title: format!("How fast added pathways must be: {}", self.title),
+            x_label: format!("largest added rate (per {})", self.units.time),
+            y_label: "share of the headroom reached".into(),
+            log_x: true,
+            log_y: false,
+            series,
+        };
+        Some(chart.render())
     }
 }
 

@@ -9,6 +9,7 @@ pub mod bound;
 pub mod check;
 pub mod output;
 pub mod steady;
+pub mod svg;
 pub mod table;
 
 use crate::model::Model;

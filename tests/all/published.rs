@@ -56,7 +56,8 @@ fn two_state_enzyme_cycle_follows_reversible_michaelis_menten() {
     assert!(close(affinity, (keq * s / p).ln(), 1e-12, 0.0));
 }
 
-/// King & Altman (1956, J. Biol. Chem. 60, 1375) / Hill (1966, J. Theor. Biol. 10, 442):
+/// King & Altman (1956, J. Phys. Chem. 60, 1375) / Hill (1966, J. Theor. Biol. 10, 442)
+/// (citations from memory):
 /// for a three-state cycle, p_i is proportional to the sum over spanning trees directed into i
 /// of the product of their rates, and the cycle flux is (prod k+ - prod k-) / sum of all trees.
 #[test]

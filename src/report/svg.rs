@@ -1,0 +1,285 @@
+//! Minimal SVG line charts (no dependencies): linear or logarithmic axes, several series,
+//! optional dashed reference lines, a legend. Owns layout only; receives plain numbers.
+
+use std::fmt::Write;
+
+/// One line of a chart.
+#[derive(Debug, Clone)]
+pub struct Series {
+    pub name: String,
+    pub points: Vec<(f64, f64)>,
+    pub dashed: bool,
+    /// Draw a dot at every point.
+    pub markers: bool,
+    /// Join the points by a line.
+    pub joined: bool,
+}
+
+/// A chart: title, axis labels and scales, series.
+#[derive(Debug, Clone)]
+pub struct Chart {
+    pub title: String,
+    pub x_label: String,
+    pub y_label: String,
+    pub log_x: bool,
+    pub log_y: bool,
+    pub series: Vec<Series>,
+}
+
+const WIDTH: f64 = 720.0;
+const HEIGHT: f64 = 440.0;
+const LEFT: f64 = 80.0;
+const RIGHT: f64 = 180.0;
+const TOP: f64 = 50.0;
+const BOTTOM: f64 = 60.0;
+const COLOURS: [&str; 6] = [
+    "#1f5fa8", "#c2491d", "#2e8540", "#7a3ea1", "#8c6d1f", "#444444",
+];
+
+fn nice_step(span: f64) -> f64 {
+    let raw = span / 5.0;
+    let magnitude = 10f64.powf(raw.log10().floor());
+    let unit = raw / magnitude;
+    magnitude
+        * if unit < 1.5 {
+            1.0
+        } else if unit < 3.5 {
+            2.0
+        } else if unit < 7.5 {
+            5.0
+        } else {
+            10.0
+        }
+}
+
+/// Axis range and tick positions (in data units) for values `lo..hi`.
+fn axis(lo: f64, hi: f64, log: bool) -> (f64, f64, Vec<f64>) {
+    if log {
+        let (a, b) = (
+            lo.log10().floor(),
+            hi.log10().ceil().max(lo.log10().floor() + 1.0),
+        );
+        let every = ((b - a) / 8.0).ceil().max(1.0);
+        let ticks = (0..=((b - a) / every) as i32)
+            .map(|k| 10f64.powf(a + every * k as f64))
+            .collect();
+        (10f64.powf(a), 10f64.powf(b), ticks)
+    } else {
+        let (lo, hi) = if hi > lo {
+            (lo, hi)
+        } else {
+            (lo - 1.0, hi + 1.0)
+        };
+        let step = nice_step(hi - lo);
+        let (a, b) = ((lo / step).floor() * step, (hi / step).ceil() * step);
+        let ticks = (0..=((b - a) / step).round() as i32)
+            .map(|k| a + step * k as f64)
+            .collect();
+        (a, b, ticks)
+    }
+}
+
+fn label(v: f64, log: bool) -> String {
+    if log {
+        format!("1e{}", v.log10().round() as i32)
+    } else if v == 0.0 {
+        "0".into()
+    } else if v.abs() >= 1e4 || v.abs() < 1e-2 {
+        format!("{v:.1e}")
+    } else {
+        format!("{}", (v * 1e6).round() / 1e6)
+    }
+}
+
+fn escape(text: &str) -> String {
+    text.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+}
+
+impl Chart {
+    /// The chart as an SVG document. Points that cannot be drawn on a log axis are skipped.
+    pub fn render(&self) -> String {
+        let usable = |&(x, y): &(f64, f64)| {
+            x.is_finite() && y.is_finite() && (!self.log_x || x > 0.0) && (!self.log_y || y > 0.0)
+        };
+        let all: Vec<(f64, f64)> = self
+            .series
+            .iter()
+            .flat_map(|s| s.points.iter().copied().filter(usable))
+            .collect();
+        let (xs, ys): (Vec<f64>, Vec<f64>) = all.iter().copied().unzip();
+        let range = |v: &[f64]| {
+            (
+                v.iter().copied().fold(f64::INFINITY, f64::min),
+                v.iter().copied().fold(f64::NEG_INFINITY, f64::max),
+            )
+        };
+        let ((x0, x1), (y0, y1)) = if all.is_empty() {
+            ((1.0, 10.0), (0.0, 1.0))
+        } else {
+            (range(&xs), range(&ys))
+        };
+        let (xa, xb, xticks) = axis(x0, x1, self.log_x);
+        let (ya, yb, yticks) = axis(y0, y1, self.log_y);
+        let (pw, ph) = (WIDTH - LEFT - RIGHT, HEIGHT - TOP - BOTTOM);
+        let fx = |x: f64| {
+            let t = if self.log_x {
+                (x / xa).log10() / (xb / xa).log10()
+            } else {
+                (x - xa) / (xb - xa)
+            };
+            LEFT + t * pw
+        };
+        let fy = |y: f64| {
+            let t = if self.log_y {
+                (y / ya).log10() / (yb / ya).log10()
+            } else {
+                (y - ya) / (yb - ya)
+            };
+            TOP + (1.0 - t) * ph
+        };
+        let mut svg = String::new();
+        let _ = writeln!(
+            svg,
+            r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{HEIGHT}" viewBox="0 0 {WIDTH} {HEIGHT}" font-family="sans-serif" font-size="12">"#
+        );
+        let _ = writeln!(svg, r#"<rect width="100%" height="100%" fill="white"/>"#);
+        let _ = writeln!(
+            svg,
+            r#"<text x="{}" y="28" font-size="15" text-anchor="middle">{}</text>"#,
+            LEFT + pw / 2.0,
+            escape(&self.title)
+        );
+        for &t in &xticks {
+            let x = fx(t);
+            let _ = writeln!(
+                svg,
+                r##"<line x1="{x:.1}" y1="{TOP}" x2="{x:.1}" y2="{:.1}" stroke="#e4e4e4"/><text x="{x:.1}" y="{:.1}" text-anchor="middle">{}</text>"##,
+                TOP + ph,
+                TOP + ph + 18.0,
+                label(t, self.log_x)
+            );
+        }
+        for &t in &yticks {
+            let y = fy(t);
+            let _ = writeln!(
+                svg,
+                r##"<line x1="{LEFT}" y1="{y:.1}" x2="{:.1}" y2="{y:.1}" stroke="#e4e4e4"/><text x="{:.1}" y="{:.1}" text-anchor="end">{}</text>"##,
+                LEFT + pw,
+                LEFT - 6.0,
+                y + 4.0,
+                label(t, self.log_y)
+            );
+        }
+        let _ = writeln!(
+            svg,
+            r##"<rect x="{LEFT}" y="{TOP}" width="{pw}" height="{ph}" fill="none" stroke="#333"/>"##
+        );
+        let _ = writeln!(
+            svg,
+            r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#,
+            LEFT + pw / 2.0,
+            HEIGHT - 15.0,
+            escape(&self.x_label)
+        );
+        let _ = writeln!(
+            svg,
+            r#"<text transform="translate(20 {}) rotate(-90)" text-anchor="middle">{}</text>"#,
+            TOP + ph / 2.0,
+            escape(&self.y_label)
+        );
+        for (k, s) in self.series.iter().enumerate() {
+            let colour = COLOURS[k % COLOURS.len()];
+            let points: Vec<String> = s
+                .points
+                .iter()
+                .filter(|p| usable(p))
+                .map(|&(x, y)| format!("{:.1},{:.1}", fx(x), fy(y)))
+                .collect();
+            let dash = if s.dashed {
+                r#" stroke-dasharray="6 4""#
+            } else {
+                ""
+            };
+            if s.joined {
+                let _ = writeln!(
+                    svg,
+                    r#"<polyline fill="none" stroke="{colour}" stroke-width="2"{dash} points="{}"/>"#,
+                    points.join(" ")
+                );
+            }
+            if s.markers {
+                for p in s.points.iter().filter(|p| usable(p)) {
+                    let _ = writeln!(
+                        svg,
+                        r#"<circle cx="{:.1}" cy="{:.1}" r="3.5" fill="{colour}"/>"#,
+                        fx(p.0),
+                        fy(p.1)
+                    );
+                }
+            }
+            // Legend entry: a line sample for joined series, a dot otherwise.
+            let (ly, kx) = (TOP + 14.0 + 20.0 * k as f64, LEFT + pw + 12.0);
+            if s.joined {
+                let _ = writeln!(
+                    svg,
+                    r#"<line x1="{kx:.1}" y1="{ly:.1}" x2="{:.1}" y2="{ly:.1}" stroke="{colour}" stroke-width="2"{dash}/>"#,
+                    kx + 24.0
+                );
+            } else {
+                let _ = writeln!(
+                    svg,
+                    r#"<circle cx="{:.1}" cy="{ly:.1}" r="3.5" fill="{colour}"/>"#,
+                    kx + 12.0
+                );
+            }
+            let _ = writeln!(
+                svg,
+                r#"<text x="{:.1}" y="{:.1}">{}</text>"#,
+                kx + 30.0,
+                ly + 4.0,
+                escape(&s.name)
+            );
+        }
+        svg.push_str("</svg>\n");
+        svg
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn log_axis_spans_whole_decades_and_skips_unplottable_points() {
+        let (a, b, ticks) = axis(3.0, 4.2e4, true);
+        assert_eq!((a, b), (1.0, 1e5));
+        assert_eq!(ticks.len(), 6);
+        let chart = Chart {
+            title: "t".into(),
+            x_label: "x".into(),
+            y_label: "y".into(),
+            log_x: true,
+            log_y: false,
+            series: vec![Series {
+                name: "s".into(),
+                points: vec![(0.0, 1.0), (10.0, 0.5), (100.0, 0.9)],
+                dashed: false,
+                markers: true,
+                joined: true,
+            }],
+        };
+        let svg = chart.render();
+        assert!(svg.starts_with("<svg") && svg.ends_with("</svg>\n"));
+        assert_eq!(svg.matches("<circle").count(), 2);
+        assert_eq!(svg.matches("<polyline").count(), 1);
+    }
+
+    #[test]
+    fn linear_axis_uses_round_steps() {
+        let (a, b, ticks) = axis(0.03, 0.97, false);
+        assert_eq!((a, b), (0.0, 1.0));
+        assert_eq!(ticks.len(), 6);
+    }
+}

@@ -56,15 +56,7 @@ pub fn synthetic(family: Family, n: usize, seed: u64) -> Network {
     let mut channels = Vec::with_capacity(2 * n);
     let mut add = |rng: &mut SplitMix, from: usize, to: usize, work: f64, drive: f64| {
         let forward = 10f64.powf(2.0 * rng.uniform() - 1.0);
-        let backward = forward * (-(energies[from] - energies[to] + drive - work)).exp();
-        channels.push(Channel {
-            from,
-            to,
-            forward,
-            backward,
-            work,
-            drive,
-        });
+        channels.push(Channel::balanced(&energies, from, to, forward, work, drive));
     };
     for i in 0..n {
         add(&mut rng, i, (i + 1) % n, 0.2, 1.0);
@@ -106,31 +98,38 @@ pub struct SteadyTiming {
 /// at 10^4 states, 64 s at 3 x 10^4 on 2 cores) and an iterative solver is needed.
 pub const RANDOM_CHORDS_LIMIT: usize = 10_000;
 
-/// Times the steady-state solve on each family and size (random chords up to
-/// [`RANDOM_CHORDS_LIMIT`]).
+/// The benchmark networks of every family and size, seeded by size (random chords only up to
+/// [`RANDOM_CHORDS_LIMIT`] states).
+fn networks<'a>(
+    sizes: &'a [usize],
+    families: &'a [Family],
+) -> impl Iterator<Item = (Family, usize, Network)> + 'a {
+    families.iter().flat_map(move |&family| {
+        sizes
+            .iter()
+            .filter(move |&&n| family != Family::RandomChords || n <= RANDOM_CHORDS_LIMIT)
+            .map(move |&n| (family, n, synthetic(family, n, 2024 + n as u64)))
+    })
+}
+
+/// Times the steady-state solve on each family and size.
 pub fn time_steady(
     sizes: &[usize],
     families: &[Family],
     runs: usize,
 ) -> Result<Vec<SteadyTiming>, SolveError> {
     let mut rows = Vec::new();
-    for &family in families {
-        for &n in sizes {
-            if family == Family::RandomChords && n > RANDOM_CHORDS_LIMIT {
-                continue;
-            }
-            let net = synthetic(family, n, 2024 + n as u64);
-            let (seconds, result) =
-                median_seconds(runs, || steady::solve(&net, &SteadySettings::default()));
-            let state = result?;
-            rows.push(SteadyTiming {
-                family,
-                states: n,
-                seconds,
-                method: state.method.name(),
-                relative_residual: state.relative_residual,
-            });
-        }
+    for (family, n, net) in networks(sizes, families) {
+        let (seconds, result) =
+            median_seconds(runs, || steady::solve(&net, &SteadySettings::default()));
+        let state = result?;
+        rows.push(SteadyTiming {
+            family,
+            states: n,
+            seconds,
+            method: state.method.name(),
+            relative_residual: state.relative_residual,
+        });
     }
     Ok(rows)
 }
@@ -157,36 +156,30 @@ pub fn time_bound(
     use crate::bound::{self, BoundSettings};
     use crate::model::PairSelection;
     let mut rows = Vec::new();
-    for &family in families {
-        for &n in sizes {
-            if family == Family::RandomChords && n > RANDOM_CHORDS_LIMIT {
+    for (family, n, net) in networks(sizes, families) {
+        for newton_only in [true, false] {
+            if !newton_only && n > conic_limit {
                 continue;
             }
-            let net = synthetic(family, n, 2024 + n as u64);
-            for newton_only in [true, false] {
-                if !newton_only && n > conic_limit {
-                    continue;
-                }
-                let settings = BoundSettings {
-                    newton_only,
-                    ..Default::default()
-                };
-                let (seconds, result) =
-                    median_seconds(runs, || bound::solve(&net, &PairSelection::All, &settings));
-                let b = result?;
-                rows.push(BoundTiming {
-                    family,
-                    states: n,
-                    route: if newton_only {
-                        "newton"
-                    } else {
-                        "conic+newton"
-                    },
-                    seconds,
-                    relative_gap: b.relative_gap(),
-                    headroom: b.headroom(),
-                });
-            }
+            let settings = BoundSettings {
+                newton_only,
+                ..Default::default()
+            };
+            let (seconds, result) =
+                median_seconds(runs, || bound::solve(&net, &PairSelection::All, &settings));
+            let b = result?;
+            rows.push(BoundTiming {
+                family,
+                states: n,
+                route: if newton_only {
+                    "newton"
+                } else {
+                    "conic+newton"
+                },
+                seconds,
+                relative_gap: b.relative_gap(),
+                headroom: b.headroom(),
+            });
         }
     }
     Ok(rows)

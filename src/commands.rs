@@ -134,8 +134,8 @@ pub struct BenchRequest {
 /// `ergopath bench`: timings on the seeded synthetic families, printed and written as CSV.
 pub fn bench(request: &BenchRequest) -> Result<String, Error> {
     use crate::bench::{time_bound, time_steady, Family};
+    use crate::report::bench::{bound_tables, steady_tables};
     use crate::report::output::write_atomic;
-    use crate::report::table::{Align, Table};
     let sizes = request.steady_sizes.iter().chain(&request.bound_sizes);
     if let Some(&bad) = sizes.into_iter().find(|&&n| n < 4) {
         return Err(Error::Usage(format!(
@@ -144,70 +144,19 @@ pub fn bench(request: &BenchRequest) -> Result<String, Error> {
     }
     let families = [Family::Banded, Family::RandomChords];
     let runs = request.runs.max(1);
-    let steady_rows = time_steady(&request.steady_sizes, &families, runs)?;
-    let mut table = Table::new(&[
-        ("family", Align::Left),
-        ("states", Align::Right),
-        ("median s", Align::Right),
-        ("method", Align::Left),
-        ("residual", Align::Right),
-    ]);
-    let mut csv = String::from("family,states,median_seconds,method,relative_residual\n");
-    for r in &steady_rows {
-        table.row(vec![
-            r.family.name().into(),
-            r.states.to_string(),
-            format!("{:.4}", r.seconds),
-            r.method.into(),
-            format!("{:.1e}", r.relative_residual),
-        ]);
-        csv.push_str(&format!(
-            "{},{},{:e},{},{:e}\n",
-            r.family.name(),
-            r.states,
-            r.seconds,
-            r.method,
-            r.relative_residual
-        ));
-    }
+    let (table, csv) = steady_tables(&time_steady(&request.steady_sizes, &families, runs)?);
     let steady_path = request.out_dir.join("steady.csv");
     write_atomic(&steady_path, csv.as_bytes())?;
     let bound_rows = time_bound(&request.bound_sizes, &families, runs, request.conic_limit)?;
-    let mut bound_table = Table::new(&[
-        ("family", Align::Left),
-        ("states", Align::Right),
-        ("route", Align::Left),
-        ("median s", Align::Right),
-        ("rel. gap", Align::Right),
-    ]);
-    let mut bound_csv =
-        String::from("family,states,route,median_seconds,relative_gap,headroom_kT\n");
-    for r in &bound_rows {
-        bound_table.row(vec![
-            r.family.name().into(),
-            r.states.to_string(),
-            r.route.into(),
-            format!("{:.4}", r.seconds),
-            format!("{:.1e}", r.relative_gap),
-        ]);
-        bound_csv.push_str(&format!(
-            "{},{},{},{:e},{:e},{:e}\n",
-            r.family.name(),
-            r.states,
-            r.route,
-            r.seconds,
-            r.relative_gap,
-            r.headroom
-        ));
-    }
+    let (bound_table, bound_csv) = bound_tables(&bound_rows);
     let bound_path = request.out_dir.join("bound.csv");
     write_atomic(&bound_path, bound_csv.as_bytes())?;
     Ok(format!(
         "Steady-state solve, median of {runs} runs (2n channels each; random chords only up to {} states)\n\n{}\nCertified bound, all pairs (conic route up to {} states)\n\n{}\n  written: {}, {}\n",
         crate::bench::RANDOM_CHORDS_LIMIT,
-        table.render(),
+        table,
         request.conic_limit,
-        bound_table.render(),
+        bound_table,
         steady_path.display(),
         bound_path.display()
     ))

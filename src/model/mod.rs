@@ -35,6 +35,28 @@ pub struct Channel {
 }
 
 impl Channel {
+    /// The channel whose backward rate follows from LDB:
+    /// `backward = forward exp(-(E_from - E_to + drive - work))` (energies in kT), computed in
+    /// the log domain. The caller checks that the result is representable.
+    pub fn balanced(
+        energies: &[f64],
+        from: usize,
+        to: usize,
+        forward: f64,
+        work: f64,
+        drive: f64,
+    ) -> Self {
+        let backward = (forward.ln() - (energies[from] - energies[to] + drive - work)).exp();
+        Self {
+            from,
+            to,
+            forward,
+            backward,
+            work,
+            drive,
+        }
+    }
+
     /// Net flux `forward p_from - backward p_to` at distribution `p`.
     pub fn flux(&self, p: &[f64]) -> f64 {
         self.forward * p[self.from] - self.backward * p[self.to]

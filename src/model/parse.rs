@@ -313,7 +313,7 @@ fn parse_transition(
         }
         (None, Some(d)) => {
             let drive = finite_energy(ctx, d, units, "drive")?;
-            let backward = (forward.ln() - (bias + drive)).exp();
+            let backward = Channel::balanced(energies, from, to, forward, work, drive).backward;
             if !(backward.is_finite() && backward >= f64::MIN_POSITIVE) {
                 return ctx.at(d, format!("LDB implies a backward rate of exp({:.4e}), which is not representable", forward.ln() - bias - drive), "give `backward` explicitly, or reduce the energy differences of this transition");
             }

@@ -5,6 +5,7 @@
 //! physical result itself and never prints; it returns strings, and writes files only through
 //! [`output::write_atomic`].
 
+pub mod bench;
 pub mod bound;
 pub mod check;
 pub mod output;

@@ -20,16 +20,14 @@ fn network_strategy() -> impl Strategy<Value = Network> {
         (energies, edges).prop_map(move |(energies, edges)| {
             let mut channels = Vec::new();
             let mut push = |from: usize, to: usize, log_rate: f64, drive: f64, work: f64| {
-                let forward = 10f64.powf(log_rate);
-                let backward = forward * (-(energies[from] - energies[to] + drive - work)).exp();
-                channels.push(Channel {
+                channels.push(Channel::balanced(
+                    &energies,
                     from,
                     to,
-                    forward,
-                    backward,
+                    10f64.powf(log_rate),
                     work,
                     drive,
-                });
+                ));
             };
             for (i, &(_, _, lr, d, w)) in edges.iter().enumerate().take(n) {
                 push(i, (i + 1) % n, lr, d, w); // the ring keeps it irreducible

@@ -161,8 +161,10 @@ pub fn time_bound(
             if !newton_only && n > conic_limit {
                 continue;
             }
+            // The benchmark's own conic limit decides which sizes the conic route gets.
             let settings = BoundSettings {
                 newton_only,
+                conic_limit: usize::MAX,
                 ..Default::default()
             };
             let (seconds, result) =

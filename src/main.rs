@@ -71,7 +71,7 @@ enum Command {
         #[arg(long, value_delimiter = ',', default_value = "100,1000,10000")]
         bound_sizes: Vec<usize>,
         /// Largest network given to the conic (Clarabel) route
-        #[arg(long, default_value_t = 10000)]
+        #[arg(long, default_value_t = 3000)]
         conic_limit: usize,
         /// Runs per size; the median is reported
         #[arg(long, default_value_t = 3)]

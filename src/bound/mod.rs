@@ -124,7 +124,7 @@ pub fn solve(
                 let start: Vec<f64> = p.iter().map(|x| x.max(floor).ln()).collect();
                 best = Some((
                     newton::maximise(&objective, &constraints, &start, &settings.newton)?,
-                    "Clarabel exponential-cone program, polished by log-domain Newton",
+                    "conic program (Clarabel), Newton polish",
                 ));
             }
             Err(e) => conic_error = Some(e),
@@ -138,10 +138,7 @@ pub fn solve(
             .as_ref()
             .is_none_or(|(c, _)| from_baseline.upper - from_baseline.value < c.upper - c.value);
         if better {
-            best = Some((
-                from_baseline,
-                "log-domain Newton from the baseline steady state",
-            ));
+            best = Some((from_baseline, "Newton from the baseline steady state"));
         }
     }
     let (certified, route) = best.expect("at least one route ran");

@@ -2,7 +2,7 @@
 //! optimal distribution beside the baseline, the attaining design, its speed table, and the
 //! rate-capped design when a cap is given.
 
-use super::table::{num, percent, sci, Align, Table};
+use super::table::{num, percent, sci, wrap, Align, Table};
 use super::{named_distribution, StateProbability, UnitsJson};
 use crate::bound::design::VerifiedDesign;
 use crate::bound::Bound;
@@ -151,11 +151,12 @@ impl BoundReport {
         let p = &self.units.power;
         let t = &self.units.time;
         let mut out = format!(
-            "Universal bound for {}  (added pathways on: {})\n\n",
-            self.title, self.pairs
+            "Universal bound for {}\n{}\n\n",
+            self.title,
+            wrap(&format!("added pathways on: {}", self.pairs), "  ", 78)
         );
         out.push_str(&format!(
-            "  baseline power       {} {p}\n  bound                {} {p}   (certified upper {}, relative gap {:.1e})\n  headroom             {} {p}\n  split at the optimum benefit {} - maintenance cost {} {p}\n  solved by            {}\n\n",
+            "  baseline power       {} {p}\n  bound                {} {p}\n  certified upper      {} {p}  (relative gap {:.1e})\n  headroom             {} {p}\n  benefit at optimum   {} {p}, minus maintenance cost {}\n  solved by            {}\n\n",
             num(self.baseline_power),
             num(self.bound.power),
             num(self.bound.certified_upper),
@@ -281,7 +282,7 @@ fn design_text(d: &DesignJson, power_unit: &str) -> String {
     }
     let mut out = table.render();
     out.push_str(&format!(
-        "  verified power {} +- {:.1e} {power_unit} ({} of headroom; construction predicts {})\n",
+        "  verified power {} +- {:.1e} {power_unit} ({} of headroom)\n  construction predicts {} {power_unit}\n",
         num(d.achieved_power),
         d.achieved_power_roundoff,
         d.fraction_of_headroom.map_or("n/a".into(), percent),

@@ -10,7 +10,7 @@ pub fn check_text(model: &Model) -> String {
     let e = u.energy.name();
     let net = &model.network;
     let mut out = format!(
-        "{}: valid model \"{}\"\n  {} states, {} transitions, {} independent cycles; T = {} K, energies in {e}, rates per {}\n\n",
+        "{}: valid model \"{}\"\n  {} states, {} transitions, {} independent cycles\n  T = {} K, energies in {e}, rates per {}\n\n",
         model.source.display(),
         model.title,
         net.len(),

@@ -73,10 +73,10 @@ impl SteadyReport {
     pub fn text(&self, model: &Model) -> String {
         let t = &self.units.time;
         let mut out = format!(
-            "Steady state of {}  ({}, {} states)\n\n",
+            "Steady state of {}\n  {} states, solved by {}\n\n",
             self.title,
-            self.method,
-            self.states.len()
+            self.states.len(),
+            self.method
         );
         let mut states = Table::new(&[("state", Align::Left), ("probability", Align::Right)]);
         for s in &self.states {

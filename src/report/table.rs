@@ -92,6 +92,24 @@ pub fn sci(x: f64) -> String {
     format!("{x:.5e}")
 }
 
+/// `text` broken at spaces into lines of at most `width` characters, each starting with
+/// `indent`, joined by newlines (a single word longer than the width stays whole).
+pub fn wrap(text: &str, indent: &str, width: usize) -> String {
+    let mut lines: Vec<String> = Vec::new();
+    let mut line = String::from(indent);
+    for word in text.split(' ') {
+        if line.len() > indent.len() && line.len() + 1 + word.len() > width {
+            lines.push(std::mem::replace(&mut line, String::from(indent)));
+        }
+        if line.len() > indent.len() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    lines.push(line);
+    lines.join("\n")
+}
+
 /// A fraction as a percentage with one decimal.
 pub fn percent(x: f64) -> String {
     format!("{:.1}%", 100.0 * x)
@@ -107,6 +125,12 @@ mod tests {
         assert_eq!(num(-123.4567), "-123.46");
         assert_eq!(num(1.5e-7), "1.5000e-7");
         assert_eq!(num(0.0), "0");
+    }
+
+    #[test]
+    fn wrap_breaks_at_spaces_within_the_width() {
+        assert_eq!(wrap("aa bb cc", "  ", 7), "  aa bb\n  cc");
+        assert_eq!(wrap("abcdefghij", "  ", 5), "  abcdefghij");
     }
 
     #[test]

@@ -3,7 +3,7 @@
 //! This is the seam between the binary and the library: the binary turns flags into the plain
 //! settings below and prints the returned text. Nothing here parses flags, prints or exits.
 
-use crate::model::{Model, ModelError};
+use crate::model::{Model, ModelError, PairSelection};
 use crate::report::output::{to_json, OutputError};
 use crate::report::{check::check_text, steady::SteadyReport};
 use crate::steady::{self, SolveError, SteadySettings};
@@ -176,6 +176,9 @@ pub struct BoundRequest {
     pub save_root: Option<std::path::PathBuf>,
 }
 
+/// Largest model for which the capped design may consider every pair of states.
+pub const CAPPED_ALL_PAIRS_LIMIT: usize = 60;
+
 /// Shares of the headroom in the speed table.
 pub const SPEED_TABLE_FRACTIONS: [f64; 4] = [0.5, 0.9, 0.99, 0.999];
 
@@ -204,6 +207,13 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         )));
     }
     let net = &model.network;
+    if rate_cap.is_some() && pairs == PairSelection::All && net.len() > CAPPED_ALL_PAIRS_LIMIT {
+        return Err(Error::Usage(format!(
+            "--rate-cap over all pairs of {} states means {} candidate pathways; the exact capped design is limited to {CAPPED_ALL_PAIRS_LIMIT} states: give --pairs A/B,C/D",
+            net.len(),
+            net.len() * (net.len() - 1) / 2
+        )));
+    }
     let solved = bound::solve(net, &pairs, &BoundSettings::default())?;
     let attaining =
         design::attaining(net, &solved, &pairs, request.target, &SPEED_TABLE_FRACTIONS)?;
@@ -211,18 +221,10 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         Some(cap) => Some((cap, design::capped_design(net, &pairs, cap)?)),
         None => None,
     };
-    let pairs_text = match &pairs {
-        crate::model::PairSelection::All => "all pairs".to_string(),
-        crate::model::PairSelection::Only(list) => list
-            .iter()
-            .map(|&(a, b)| format!("{}/{}", model.state_names[a], model.state_names[b]))
-            .collect::<Vec<_>>()
-            .join(","),
-    };
     let report = BoundReport::new(
         &model,
         &solved,
-        pairs_text,
+        &pairs,
         attaining.design.as_ref(),
         request.target,
         &attaining.speeds,

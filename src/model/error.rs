@@ -84,14 +84,6 @@ impl ModelError {
             fix: fix.into(),
         })
     }
-
-    /// The diagnostic, when the file was readable.
-    pub fn diagnostic(&self) -> Option<&Diagnostic> {
-        match self {
-            Self::Invalid(d) => Some(d),
-            Self::Unreadable { .. } => None,
-        }
-    }
 }
 
 #[cfg(test)]

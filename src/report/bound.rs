@@ -6,7 +6,7 @@ use super::table::{num, percent, sci, wrap, Align, Table};
 use super::{named_distribution, StateProbability, UnitsJson};
 use crate::bound::design::VerifiedDesign;
 use crate::bound::Bound;
-use crate::model::Model;
+use crate::model::{Model, PairSelection};
 use serde::Serialize;
 
 #[derive(Debug, Clone, Serialize)]
@@ -109,7 +109,7 @@ impl BoundReport {
     pub fn new(
         model: &Model,
         bound: &Bound,
-        pairs: String,
+        pairs: &PairSelection,
         design: Option<&VerifiedDesign>,
         target_fraction: f64,
         speeds: &[(f64, Option<f64>)],
@@ -120,7 +120,7 @@ impl BoundReport {
         Self {
             title: model.title.clone(),
             units: UnitsJson::of(model),
-            pairs,
+            pairs: describe_pairs(model, pairs),
             route: bound.route,
             baseline_power: u.from_kt(bound.baseline_power),
             bound: BoundNumbers {
@@ -262,6 +262,18 @@ impl BoundReport {
             series,
         };
         Some(chart.render())
+    }
+}
+
+/// `all pairs` or `A/B,C/D` with state names.
+fn describe_pairs(model: &Model, pairs: &PairSelection) -> String {
+    match pairs {
+        PairSelection::All => "all pairs".to_string(),
+        PairSelection::Only(list) => list
+            .iter()
+            .map(|&(a, b)| format!("{}/{}", model.state_names[a], model.state_names[b]))
+            .collect::<Vec<_>>()
+            .join(", "),
     }
 }
 

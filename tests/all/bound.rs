@@ -375,3 +375,44 @@ fn bound_flags_are_checked() {
         assert!(out.stdout.is_empty());
     }
 }
+
+/// The exact capped design over all pairs grows as n^2 candidates: beyond 60 states the
+/// command asks for a pair list instead of exhausting memory.
+#[test]
+fn capped_design_over_all_pairs_of_a_large_model_asks_for_pairs() {
+    let n = 61;
+    let mut text = String::new();
+    for i in 0..n {
+        text += &format!("[[state]]\nname = \"s{i}\"\n");
+    }
+    for i in 0..n {
+        text += &format!(
+            "[[transition]]\nfrom = \"s{i}\"\nto = \"s{}\"\nforward = 2\nbackward = 1\n",
+            (i + 1) % n
+        );
+    }
+    let dir = crate::common::scratch("capped-limit");
+    let path = dir.join("big.toml");
+    std::fs::write(&path, text).unwrap();
+    let out = crate::common::run(&["bound", path.to_str().unwrap(), "--rate-cap", "10"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("1830 candidate pathways") && stderr.contains("--pairs"),
+        "{stderr}"
+    );
+    let fine = crate::common::run(&[
+        "bound",
+        path.to_str().unwrap(),
+        "--rate-cap",
+        "10",
+        "--pairs",
+        "s0/s30",
+    ]);
+    assert!(
+        fine.status.success(),
+        "{}",
+        String::from_utf8_lossy(&fine.stderr)
+    );
+    std::fs::remove_dir_all(dir).unwrap();
+}

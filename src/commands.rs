@@ -230,6 +230,10 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         &attaining.speeds,
         &attaining.curve,
         capped.as_ref().map(|(c, d)| (*c, d)),
+        // The estimate is informative only; a failed solve just leaves it out.
+        bound::closed_form::near_equilibrium(net, &solved.baseline)
+            .ok()
+            .map(|e| e.headroom),
     );
     let rendered = Rendered {
         text: report.text(),

@@ -72,6 +72,20 @@ pub struct BoundReport {
     pub rate_capped: Option<CappedJson>,
     /// `(largest added rate, share of the headroom)` along the tree design.
     pub speed_curve: Vec<(f64, f64)>,
+    pub closed_forms: ClosedForms,
+}
+
+/// Closed-form estimates of the headroom (model-format.md keys); `None` where not computed.
+#[derive(Debug, Clone, Serialize)]
+pub struct ClosedForms {
+    pub near_equilibrium: Option<Estimate>,
+    /// The strong-drive form is not implemented yet.
+    pub strong_drive: Option<Estimate>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct Estimate {
+    pub headroom: f64,
 }
 
 impl DesignJson {
@@ -115,6 +129,7 @@ impl BoundReport {
         speeds: &[(f64, Option<f64>)],
         curve: &[(f64, f64)],
         capped: Option<(f64, &VerifiedDesign)>,
+        near_equilibrium: Option<f64>,
     ) -> Self {
         let u = &model.units;
         Self {
@@ -140,6 +155,12 @@ impl BoundReport {
                 .map(|&(fraction, speed)| SpeedRow { fraction, speed })
                 .collect(),
             speed_curve: curve.to_vec(),
+            closed_forms: ClosedForms {
+                near_equilibrium: near_equilibrium.map(|h| Estimate {
+                    headroom: u.from_kt(h),
+                }),
+                strong_drive: None,
+            },
             rate_capped: capped.map(|(rate_cap, d)| CappedJson {
                 rate_cap,
                 design: DesignJson::new(d, model, bound),
@@ -156,12 +177,13 @@ impl BoundReport {
             wrap(&format!("added pathways on: {}", self.pairs), "  ", 78)
         );
         out.push_str(&format!(
-            "  baseline power       {} {p}\n  bound                {} {p}\n  certified upper      {} {p}  (relative gap {:.1e})\n  headroom             {} {p}\n  benefit at optimum   {} {p}, minus maintenance cost {}\n  solved by            {}\n\n",
+            "  baseline power       {} {p}\n  bound                {} {p}\n  certified upper      {} {p}  (relative gap {:.1e})\n  headroom             {} {p}\n{}  benefit at optimum   {} {p}, minus maintenance cost {}\n  solved by            {}\n\n",
             num(self.baseline_power),
             num(self.bound.power),
             num(self.bound.certified_upper),
             self.bound.relative_gap,
             num(self.bound.headroom),
+            self.near_equilibrium_line(),
             num(self.benefit),
             num(self.maintenance_cost),
             self.route
@@ -204,6 +226,26 @@ impl BoundReport {
 }
 
 impl BoundReport {
+    /// `  near equilibrium     X (error Y%)` when the estimate exists.
+    fn near_equilibrium_line(&self) -> String {
+        match &self.closed_forms.near_equilibrium {
+            None => String::new(),
+            Some(e) => {
+                let error = if self.bound.headroom != 0.0 {
+                    format!(
+                        "  (quadratic estimate, {} off)",
+                        percent(
+                            (e.headroom - self.bound.headroom).abs() / self.bound.headroom.abs()
+                        )
+                    )
+                } else {
+                    "  (quadratic estimate)".to_string()
+                };
+                format!("  near equilibrium     {}{error}\n", num(e.headroom))
+            }
+        }
+    }
+
     /// Share of the headroom against the largest added rate: the tree design's curve, the speed
     /// table's points, the exact capped design, and the universal bound as a dashed line.
     pub fn svg(&self) -> Option<String> {

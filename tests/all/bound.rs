@@ -416,3 +416,51 @@ fn capped_design_over_all_pairs_of_a_large_model_asks_for_pairs() {
     );
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// Theory note, section 6: the near-equilibrium (quadratic) estimate of the headroom becomes
+/// exact as drives and work labels shrink, its relative error falling linearly with the scale.
+#[test]
+fn near_equilibrium_estimate_converges_linearly_in_the_drive() {
+    use ergopath::bound::closed_form::near_equilibrium;
+    for path in [
+        "tests/fixtures/models/random1.toml",
+        "tests/fixtures/models/random4.toml",
+        "problems/walker.toml",
+    ] {
+        let model = load(path);
+        let base = &model.network;
+        let error_at = |scale: f64| {
+            let channels: Vec<Channel> = base
+                .channels
+                .iter()
+                .map(|c| {
+                    Channel::balanced(
+                        &base.energies,
+                        c.from,
+                        c.to,
+                        c.forward,
+                        c.work * scale,
+                        c.drive * scale,
+                    )
+                })
+                .collect();
+            let net = Network {
+                energies: base.energies.clone(),
+                channels,
+            };
+            let exact = bound::solve(&net, &PairSelection::All, &BoundSettings::default()).unwrap();
+            let pi = steady::solve(&net, &SteadySettings::default())
+                .unwrap()
+                .probabilities;
+            let estimate = near_equilibrium(&net, &pi).unwrap().headroom;
+            ((estimate - exact.headroom()) / exact.headroom()).abs()
+        };
+        let (coarse, fine) = (error_at(1e-2), error_at(1e-3));
+        assert!(fine < 1e-2, "{path}: relative error {fine} at scale 1e-3");
+        let ratio = coarse / fine;
+        assert!(
+            (5.0..20.0).contains(&ratio),
+            "{path}: error ratio {ratio} for a tenfold scale (linear: 10)"
+        );
+    }
+}

@@ -34,8 +34,8 @@ pub fn near_equilibrium(network: &Network, pi: &[f64]) -> Result<NearEquilibrium
         .map(|k| objective.work_gradient[k] - objective.exit[k] * psi[k])
         .collect();
     let mut triplets = Vec::with_capacity(2 * objective.jumps.len() + 3 * n);
-    for k in 0..n {
-        triplets.push(Triplet::new(k, k, 2.0 * objective.exit[k] / pi[k]));
+    for (k, (exit, p)) in objective.exit.iter().zip(pi).enumerate() {
+        triplets.push(Triplet::new(k, k, 2.0 * exit / p));
         triplets.push(Triplet::new(k, n, 1.0));
         triplets.push(Triplet::new(n, k, 1.0));
     }

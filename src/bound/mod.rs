@@ -59,7 +59,6 @@ pub struct Bound {
     pub maintenance: f64,
     /// How the maximiser was found (for reports).
     pub route: &'static str,
-    pub iterations: usize,
 }
 
 impl Bound {
@@ -124,7 +123,7 @@ pub fn solve(
                 let floor = 1e-300;
                 let start: Vec<f64> = p.iter().map(|x| x.max(floor).ln()).collect();
                 best = Some((
-                    newton::maximise(&objective, &constraints, &start, &settings.newton)?,
+                    newton::maximise(&objective, &constraints, &start, &settings.newton),
                     "conic program (Clarabel), Newton polish",
                 ));
             }
@@ -134,7 +133,7 @@ pub fn solve(
     let tight = |c: &Certified| c.upper - c.value <= 1e-10 * c.value.abs().max(1e-300);
     if best.as_ref().is_none_or(|(c, _)| !tight(c)) {
         let from_baseline =
-            newton::maximise(&objective, &constraints, &log_baseline, &settings.newton)?;
+            newton::maximise(&objective, &constraints, &log_baseline, &settings.newton);
         let better = best
             .as_ref()
             .is_none_or(|(c, _)| from_baseline.upper - from_baseline.value < c.upper - c.value);
@@ -158,6 +157,5 @@ pub fn solve(
         p: certified.p,
         log_p: certified.log_p,
         route,
-        iterations: certified.iterations,
     })
 }

@@ -73,7 +73,6 @@ pub struct Certified {
     pub value: f64,
     /// A proven upper bound on the constrained maximum of `Phi`.
     pub upper: f64,
-    pub iterations: usize,
 }
 
 /// `ln p` normalised so that `sum p = 1`.
@@ -110,13 +109,14 @@ pub fn certificate(
     objective.value(p, log_p) + (top - mean).max(0.0) + infeasibility
 }
 
-/// Maximises `Phi` from the interior start `log_p` (any normalisation).
+/// Maximises `Phi` from the interior start `log_p` (any normalisation). It cannot fail: a
+/// singular step ends the iteration, and the result always carries a valid certificate.
 pub fn maximise(
     objective: &Objective,
     constraints: &Constraints,
     start: &[f64],
     settings: &NewtonSettings,
-) -> Result<Certified, SolveError> {
+) -> Certified {
     let mut log_p = start.to_vec();
     normalise_logs(&mut log_p);
     let mut p: Vec<f64> = log_p.iter().map(|l| l.exp()).collect();
@@ -192,13 +192,12 @@ pub fn maximise(
             break; // converged to working precision, or no progress possible there
         }
     }
-    Ok(Certified {
+    Certified {
         log_p,
         p,
         value,
         upper: best_upper.max(value),
-        iterations,
-    })
+    }
 }
 
 /// One Newton direction `du` (in `ln p`) and the constraint multipliers `mu`.

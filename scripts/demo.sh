@@ -1,12 +1,18 @@
 #!/usr/bin/env bash
-# Regenerates results/ from the shipped example models: steady state and certified bound (with
-# the attaining design, speed table and chart; the rate-capped design where the model sets
-# [pathways] rate_cap) for every model in problems/.
+# Regenerates results/ from the shipped example models: for every model in problems/, the
+# steady state, the certified bound (attaining design, speed table, chart; the rate-capped
+# design where [pathways] sets rate_cap), the ranked designs within the model's [pathways]
+# budget and a sweep of the rate cap; then a comparison of all the models.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 cargo build --release --quiet
+bin=./target/release/ergopath
 for model in problems/*.toml; do
-  ./target/release/ergopath steady "$model" --save > /dev/null
-  ./target/release/ergopath bound "$model" --save > /dev/null
+  $bin steady "$model" --save > /dev/null
+  $bin bound "$model" --save > /dev/null
+  $bin design "$model" --save --quiet > /dev/null
+  $bin sweep "$model" --over rate-cap=1..1e6 --points 13 --save --quiet > /dev/null
   echo "results/$(basename "$model" .toml)/ regenerated"
 done
+$bin compare problems/*.toml --save --quiet > /dev/null
+echo "results/compare/ regenerated"

@@ -187,6 +187,85 @@ pub fn time_bound(
     Ok(rows)
 }
 
+/// The design-search benchmark on one seeded network.
+#[derive(Debug, Clone)]
+pub struct DesignTiming {
+    pub states: usize,
+    pub max_pathways: usize,
+    /// Pathway sets in the search space, scored, pruned.
+    pub sets: u64,
+    pub scored: u64,
+    pub pruned: u64,
+    /// Steady-state evaluations (each scores one concrete design, with its gradient).
+    pub evaluations: u64,
+    pub seconds: f64,
+    /// Designs scored per second when nothing but scoring runs (random rates, all threads).
+    pub raw_scorings_per_second: f64,
+}
+
+/// Rate cap of the design benchmark (rates of the synthetic networks are 0.1..10).
+pub const DESIGN_RATE_CAP: f64 = 10.0;
+
+/// Times a full design search (all pairs, up to `k` pathways under [`DESIGN_RATE_CAP`], top
+/// 10) on a seeded random-chord network of `states`, and the raw scoring throughput.
+pub fn time_design(states: usize, k: usize, runs: usize) -> Result<DesignTiming, SolveError> {
+    use crate::bound::{self, BoundSettings};
+    use crate::model::PairSelection;
+    use crate::search::{evaluate::Evaluator, Budget, SearchSettings, Searcher, Shard, Silent};
+    use rayon::prelude::*;
+    let net = synthetic(Family::RandomChords, states, 2024 + states as u64);
+    let bound = bound::solve(&net, &PairSelection::All, &BoundSettings::default())?;
+    let candidates: Vec<(usize, usize)> = (0..states)
+        .flat_map(|a| (a + 1..states).map(move |b| (a, b)))
+        .collect();
+    let budget = Budget {
+        max_pathways: k,
+        rate_cap: Some(DESIGN_RATE_CAP),
+        total_rate: None,
+        work_limit: None,
+    };
+    let searcher = Searcher::new(
+        &net,
+        candidates.clone(),
+        SearchSettings::new(budget),
+        (bound.baseline_power, bound.headroom()),
+    )
+    .map_err(|e| SolveError::Unresolved(e.to_string()))?;
+    let (seconds, part) = median_seconds(runs, || searcher.run(Shard::WHOLE, &Silent));
+    let outcome = crate::search::merge(vec![
+        part.map_err(|e| SolveError::Unresolved(e.to_string()))?
+    ])
+    .map_err(|e| SolveError::Unresolved(e.to_string()))?;
+    let evaluator = Evaluator::new(&net);
+    let count = 200_000;
+    let start = Instant::now();
+    let checksum: f64 = (0..count)
+        .into_par_iter()
+        .map(|i: u64| {
+            let mut rng = SplitMix::new(i);
+            let pairs: Vec<(usize, usize)> = (0..k.max(1))
+                .map(|_| candidates[(rng.next_u64() % candidates.len() as u64) as usize])
+                .collect();
+            let log_rates: Vec<f64> = (0..2 * pairs.len())
+                .map(|_| DESIGN_RATE_CAP.ln() - 6.0 * rng.uniform())
+                .collect();
+            evaluator.evaluate(&pairs, &log_rates, true).power
+        })
+        .sum();
+    std::hint::black_box(checksum);
+    let raw = count as f64 / start.elapsed().as_secs_f64();
+    Ok(DesignTiming {
+        states,
+        max_pathways: k,
+        sets: outcome.space,
+        scored: outcome.evaluated,
+        pruned: outcome.pruned,
+        evaluations: outcome.scorings,
+        seconds,
+        raw_scorings_per_second: raw,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

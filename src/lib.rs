@@ -9,7 +9,9 @@ pub mod bound;
 pub mod commands;
 pub mod linalg;
 pub mod model;
+pub mod progress;
 pub mod report;
+pub mod search;
 pub mod steady;
 pub mod units;
 

@@ -59,6 +59,87 @@ enum Command {
         #[command(flatten)]
         save: SaveFlag,
     },
+    /// Rank concrete designs (pathway sets and rates) within a budget, verified by steady-state solves
+    #[command(
+        after_help = "Examples:\n  ergopath design problems/walker.toml --max-pathways 2 --rate-cap 1000\n  ergopath design problems/ring6.toml --max-pathways 3 --total-rate 50 --work-limit 2 --top 5 --save\n  ergopath design problems/walker.toml --shard 0/4 --save   (then: ergopath merge results/walker/design-part-*-of-4.json)"
+    )]
+    Design {
+        /// Model file (TOML)
+        model: PathBuf,
+        /// Where added pathways may act: `all` or pairs like A/B,C/D (default: the model's [pathways] pairs, else all)
+        #[arg(long)]
+        pairs: Option<String>,
+        #[command(flatten)]
+        budget: BudgetArgs,
+        #[command(flatten)]
+        search: SearchArgs,
+        /// Score only shard I of N (0-based) and write its part file for `ergopath merge`
+        #[arg(long, value_name = "I/N", value_parser = parse_shard)]
+        shard: Option<(usize, usize)>,
+        #[command(flatten)]
+        format: FormatFlags,
+        #[command(flatten)]
+        save: SaveFlag,
+    },
+    /// Combine the part files of a sharded design search into the ranking one run would give
+    #[command(
+        after_help = "Example:\n  ergopath merge results/walker/design-part-*-of-4.json --save"
+    )]
+    Merge {
+        /// Part files written by `ergopath design --shard I/N`
+        #[arg(required = true)]
+        parts: Vec<PathBuf>,
+        /// The model file, if it is no longer where the parts say
+        #[arg(long)]
+        model: Option<PathBuf>,
+        #[command(flatten)]
+        format: FormatFlags,
+        #[command(flatten)]
+        save: SaveFlag,
+    },
+    /// Best design at each value of one budget quantity, beside the bounds (table, CSV, plot)
+    #[command(
+        after_help = "Examples:\n  ergopath sweep problems/walker.toml --over rate-cap=1..1e6 --points 13 --save\n  ergopath sweep problems/ring6.toml --over max-pathways=1..4 --rate-cap 100"
+    )]
+    Sweep {
+        /// Model file (TOML)
+        model: PathBuf,
+        /// The budget quantity and its range: rate-cap, total-rate, max-pathways or work-limit, as NAME=FROM..TO
+        #[arg(long, value_name = "NAME=FROM..TO")]
+        over: String,
+        /// Number of budget values (log-spaced for rates; every integer for max-pathways)
+        #[arg(long, default_value_t = 13)]
+        points: usize,
+        /// Where added pathways may act: `all` or pairs like A/B,C/D
+        #[arg(long)]
+        pairs: Option<String>,
+        #[command(flatten)]
+        budget: BudgetArgs,
+        #[command(flatten)]
+        search: SearchArgs,
+        #[command(flatten)]
+        format: FormatFlags,
+        #[command(flatten)]
+        save: SaveFlag,
+    },
+    /// Rank alternative architectures (model files) by bound, headroom and best power within a budget
+    #[command(
+        after_help = "Example:\n  ergopath compare problems/walker.toml problems/photoswitch.toml problems/ring6.toml --rate-cap 1000 --save"
+    )]
+    Compare {
+        /// Two or more model files
+        #[arg(required = true, num_args = 2..)]
+        models: Vec<PathBuf>,
+        #[command(flatten)]
+        budget: BudgetArgs,
+        #[command(flatten)]
+        search: SearchArgs,
+        #[command(flatten)]
+        format: FormatFlags,
+        /// Also write the comparison to results/compare/
+        #[arg(long)]
+        save: bool,
+    },
     /// Time the solvers on seeded synthetic networks (banded and random-chord families)
     #[command(
         after_help = "Example:\n  ergopath bench --sizes 100,1000,100000 --bound-sizes 100,1000,10000 --runs 3"
@@ -79,7 +160,96 @@ enum Command {
         /// Folder for the timing table
         #[arg(long, default_value = "results/bench")]
         out: PathBuf,
+        /// States of the random network for the design-search timing (0 skips it)
+        #[arg(long, default_value_t = 12)]
+        design_states: usize,
+        /// Most pathways per design in the design-search timing
+        #[arg(long, default_value_t = 3)]
+        design_k: usize,
     },
+}
+
+/// Budget of the added pathways; unset values come from the model's [pathways] table.
+#[derive(Args)]
+struct BudgetArgs {
+    /// How many added pathways a design may use (default: [pathways] max_pathways, else 2)
+    #[arg(long, value_name = "K")]
+    max_pathways: Option<usize>,
+    /// Per-direction rate limit of each added pathway (per the model's time unit)
+    #[arg(long, value_name = "K", allow_negative_numbers = true)]
+    rate_cap: Option<f64>,
+    /// Limit on the sum of all added rates, both directions
+    #[arg(long, value_name = "T", allow_negative_numbers = true)]
+    total_rate: Option<f64>,
+    /// Limit on |work per jump| of each added pathway (model's energy unit)
+    #[arg(long, value_name = "W", allow_negative_numbers = true)]
+    work_limit: Option<f64>,
+}
+
+impl BudgetArgs {
+    fn flags(&self) -> commands::BudgetFlags {
+        commands::BudgetFlags {
+            max_pathways: self.max_pathways,
+            rate_cap: self.rate_cap,
+            total_rate: self.total_rate,
+            work_limit: self.work_limit,
+        }
+    }
+}
+
+/// How the design search runs.
+#[derive(Args)]
+struct SearchArgs {
+    /// How many designs to rank
+    #[arg(long, default_value_t = 10)]
+    top: usize,
+    /// Seeded random starts of the rate optimisation per pathway set (besides the convex start)
+    #[arg(long, default_value_t = 2)]
+    starts: usize,
+    /// Seed of the random starts (the same seed gives the same ranking)
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Worker threads (default: one per core)
+    #[arg(long, default_value_t = 0)]
+    threads: usize,
+    /// Largest number of pathway sets searched exhaustively; above it a beam search runs
+    #[arg(long, default_value_t = ergopath::search::EXHAUSTIVE_LIMIT)]
+    exhaustive_limit: u64,
+    /// Sets kept per level by the beam search
+    #[arg(long, default_value_t = 48)]
+    beam_width: usize,
+    /// No progress bar
+    #[arg(long, short)]
+    quiet: bool,
+}
+
+impl SearchArgs {
+    fn knobs(&self) -> commands::SearchKnobs {
+        commands::SearchKnobs {
+            top: self.top,
+            starts: self.starts,
+            seed: self.seed,
+            exhaustive_limit: self.exhaustive_limit,
+            beam_width: self.beam_width,
+            threads: self.threads,
+            quiet: self.quiet,
+        }
+    }
+}
+
+/// `I/N` with `I < N`.
+fn parse_shard(text: &str) -> Result<(usize, usize), String> {
+    let usage = || format!("'{text}' is not a shard: give I/N with 0 <= I < N, e.g. 0/4");
+    let (i, n) = text.split_once('/').ok_or_else(usage)?;
+    let (i, n) = (
+        i.trim().parse::<usize>().map_err(|_| usage())?,
+        n.trim().parse::<usize>().map_err(|_| usage())?,
+    );
+    if i < n {
+        Ok((i, n))
+    } else {
+        Err(usage())
+    }
 }
 
 #[derive(Args)]
@@ -147,13 +317,82 @@ fn main() -> ExitCode {
             conic_limit,
             runs,
             out,
+            design_states,
+            design_k,
         } => commands::bench(&commands::BenchRequest {
             steady_sizes: sizes.clone(),
             bound_sizes: bound_sizes.clone(),
             conic_limit: *conic_limit,
             runs: *runs,
             out_dir: out.clone(),
+            design: (*design_states > 0).then_some((*design_states, *design_k)),
         }),
+        Command::Design {
+            model,
+            pairs,
+            budget,
+            search,
+            shard,
+            format,
+            save,
+        } => commands::design(
+            model,
+            &commands::DesignRequest {
+                pairs: pairs.clone(),
+                budget: budget.flags(),
+                knobs: search.knobs(),
+                shard: *shard,
+                format: format.format(),
+                save_root: save.root(),
+            },
+        ),
+        Command::Merge {
+            parts,
+            model,
+            format,
+            save,
+        } => commands::merge(
+            parts,
+            model.as_deref(),
+            format.format(),
+            save.root().as_deref(),
+        ),
+        Command::Sweep {
+            model,
+            over,
+            points,
+            pairs,
+            budget,
+            search,
+            format,
+            save,
+        } => commands::sweep(
+            model,
+            &commands::SweepRequest {
+                pairs: pairs.clone(),
+                budget: budget.flags(),
+                knobs: search.knobs(),
+                over: over.clone(),
+                points: *points,
+                format: format.format(),
+                save_root: save.root(),
+            },
+        ),
+        Command::Compare {
+            models,
+            budget,
+            search,
+            format,
+            save,
+        } => commands::compare(
+            models,
+            &commands::CompareRequest {
+                budget: budget.flags(),
+                knobs: search.knobs(),
+                format: format.format(),
+                save_root: save.then(|| PathBuf::from("results")),
+            },
+        ),
     };
     match result {
         Ok(text) => print_ignoring_closed_pipe(&text),

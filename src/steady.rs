@@ -118,7 +118,7 @@ pub fn relative_residual(network: &Network, p: &[f64]) -> f64 {
     rp.iter().map(|x| x.abs()).fold(0.0, f64::max) / scale
 }
 
-/// Dense GTH: censor states n-1, ..., 1 in turn, then rebuild by back substitution.
+/// Dense GTH on the network's rate matrix.
 fn gth(network: &Network) -> Vec<f64> {
     let n = network.len();
     let mut a = vec![0.0; n * n]; // a[i*n + j]: rate i -> j
@@ -126,6 +126,13 @@ fn gth(network: &Network) -> Vec<f64> {
         a[c.from * n + c.to] += c.forward;
         a[c.to * n + c.from] += c.backward;
     }
+    gth_rates(&mut a, n)
+}
+
+/// Dense GTH (Grassmann-Taksar-Heyman): censor states n-1, ..., 1 in turn, then rebuild by back
+/// substitution. `a[i*n + j]` is the total rate i -> j (diagonal ignored); `a` is overwritten.
+/// Subtraction-free, so every probability keeps a small relative error however tiny it is.
+pub fn gth_rates(a: &mut [f64], n: usize) -> Vec<f64> {
     let mut exit = vec![0.0; n];
     for k in (1..n).rev() {
         let s: f64 = a[k * n..k * n + k].iter().sum();

@@ -17,8 +17,13 @@ use clarabel::solver::{
     DefaultSettingsBuilder, DefaultSolver, IPSolver, SolverStatus, SupportedConeT,
 };
 
+/// Tolerance for results that are reported (bounds, the exact capped design).
+pub const TIGHT: f64 = 1e-10;
+
 /// Sparse constraint rows being assembled: `A x + s = b`, `s` in the cones.
 struct Program {
+    /// Clarabel's gap and feasibility tolerances.
+    tolerance: f64,
     rows: Vec<usize>,
     cols: Vec<usize>,
     vals: Vec<f64>,
@@ -27,8 +32,9 @@ struct Program {
 }
 
 impl Program {
-    fn new() -> Self {
+    fn new(tolerance: f64) -> Self {
         Self {
+            tolerance,
             rows: vec![],
             cols: vec![],
             vals: vec![],
@@ -80,23 +86,33 @@ impl Program {
         self.cones.push(SupportedConeT::ExponentialConeT());
     }
 
-    fn solve(self, q: &[f64], variables: usize) -> Result<Vec<f64>, SolveError> {
+    /// The solution and, when the solver reached its full tolerance, the dual objective (a
+    /// lower bound on `min q.x` to that tolerance). A reduced-accuracy ("almost solved")
+    /// solution is still returned, without the dual objective: at large rate caps it was
+    /// measured off by 3e-5 relative, too much to prune a search on.
+    fn solve(self, q: &[f64], variables: usize) -> Result<(Vec<f64>, Option<f64>), SolveError> {
         let m = self.b.len();
         let a = CscMatrix::new_from_triplets(m, variables, self.rows, self.cols, self.vals);
         let p = CscMatrix::<f64>::zeros((variables, variables));
         let settings = DefaultSettingsBuilder::default()
             .verbose(false)
             .max_iter(400)
-            .tol_gap_abs(1e-10)
-            .tol_gap_rel(1e-10)
-            .tol_feas(1e-10)
+            .tol_gap_abs(self.tolerance)
+            .tol_gap_rel(self.tolerance)
+            .tol_feas(self.tolerance)
             .build()
             .map_err(|e| SolveError::Conic(format!("bad settings: {e:?}")))?;
         let mut solver = DefaultSolver::new(&p, q, &a, &self.b, &self.cones, settings)
             .map_err(|e| SolveError::Conic(format!("{e:?}")))?;
         solver.solve();
         match solver.solution.status {
-            SolverStatus::Solved | SolverStatus::AlmostSolved => Ok(solver.solution.x.clone()),
+            SolverStatus::Solved | SolverStatus::AlmostSolved => {
+                let exact = solver.solution.status == SolverStatus::Solved;
+                Ok((
+                    solver.solution.x.clone(),
+                    exact.then_some(solver.solution.obj_val_dual),
+                ))
+            }
             status => Err(SolveError::Conic(format!("{status:?}"))),
         }
     }
@@ -127,11 +143,11 @@ fn simplex_and(constraints: &Constraints, n: usize) -> Vec<(Vec<(usize, f64)>, f
 pub fn universal(objective: &Objective, constraints: &Constraints) -> Result<Vec<f64>, SolveError> {
     let n = objective.n;
     let variables = n + objective.jumps.len();
-    let mut program = Program::new();
+    let mut program = Program::new(TIGHT);
     program.zero(&simplex_and(constraints, n));
     let mut q = vec![0.0; variables];
     entropic_part(&mut program, objective, &mut q, n);
-    let x = program.solve(&q, variables)?;
+    let (x, _) = program.solve(&q, variables)?;
     Ok(x[..n].to_vec())
 }
 
@@ -145,6 +161,9 @@ pub struct Candidate {
 /// Solution of the capped program: distribution and the one-way fluxes of each candidate.
 #[derive(Debug, Clone)]
 pub struct CappedSolution {
+    /// Minus the dual objective: an upper bound on the program's optimum up to the tolerance;
+    /// `None` when the solver stopped at reduced accuracy.
+    pub dual_bound: Option<f64>,
     pub p: Vec<f64>,
     pub forward_flux: Vec<f64>,
     pub backward_flux: Vec<f64>,
@@ -157,6 +176,7 @@ pub fn capped(
     objective: &Objective,
     candidates: &[Candidate],
     cap: f64,
+    tolerance: f64,
 ) -> Result<CappedSolution, SolveError> {
     let n = objective.n;
     let m = candidates.len();
@@ -165,7 +185,7 @@ pub fn capped(
     let (f0, g0) = (n + jumps, n + jumps + m);
     let (s10, s20) = (n + jumps + 2 * m, n + jumps + 3 * m);
     let variables = n + jumps + 4 * m;
-    let mut program = Program::new();
+    let mut program = Program::new(tolerance);
     let mut equations = simplex_and(&Constraints::default(), n);
     // Flux balance (R p)_i + sum_e inc(e, i)(f_e - g_e) = 0; the last row is implied by the rest.
     let mut balance: Vec<Vec<(usize, f64)>> =
@@ -194,8 +214,9 @@ pub fn capped(
         q[s10 + e] = 1.0;
         q[s20 + e] = 1.0;
     }
-    let x = program.solve(&q, variables)?;
+    let (x, dual) = program.solve(&q, variables)?;
     Ok(CappedSolution {
+        dual_bound: dual.map(|d| -d),
         p: x[..n].to_vec(),
         forward_flux: x[f0..f0 + m].iter().map(|v| v.max(0.0)).collect(),
         backward_flux: x[g0..g0 + m].iter().map(|v| v.max(0.0)).collect(),

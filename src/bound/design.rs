@@ -342,7 +342,7 @@ pub fn capped_design(
 ) -> Result<VerifiedDesign, SolveError> {
     let objective = Objective::new(network);
     let list = candidates(network.len(), pairs);
-    let solution = conic::capped(&objective, &list, cap)?;
+    let solution = conic::capped(&objective, &list, cap, conic::TIGHT)?;
     let traffic: Vec<f64> = solution
         .forward_flux
         .iter()

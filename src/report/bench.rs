@@ -1,7 +1,7 @@
 //! The `bench` report: timing tables for the terminal and the same rows as CSV.
 
 use super::table::{Align, Table};
-use crate::bench::{BoundTiming, SteadyTiming};
+use crate::bench::{BoundTiming, DesignTiming, SteadyTiming};
 
 /// One table in two forms: aligned text and CSV (CSV keeps full precision).
 fn tabulate(
@@ -17,6 +17,50 @@ fn tabulate(
         csv.push('\n');
     }
     (table.render(), csv)
+}
+
+/// Design-search timing as (text table, CSV).
+pub fn design_tables(r: &DesignTiming) -> (String, String) {
+    let per_second = |x: u64| x as f64 / r.seconds.max(1e-12);
+    let cells = vec![
+        r.states.to_string(),
+        r.max_pathways.to_string(),
+        r.sets.to_string(),
+        r.scored.to_string(),
+        format!("{:.1}%", 100.0 * r.pruned as f64 / r.sets.max(1) as f64),
+        format!("{:.2}", r.seconds),
+        format!("{:.0}", per_second(r.sets)),
+        format!("{:.0}", per_second(r.evaluations)),
+        format!("{:.0}", r.raw_scorings_per_second),
+    ];
+    let line = format!(
+        "{},{},{},{},{},{},{:e},{:e},{:e}",
+        r.states,
+        r.max_pathways,
+        r.sets,
+        r.scored,
+        r.pruned,
+        r.evaluations,
+        r.seconds,
+        per_second(r.evaluations),
+        r.raw_scorings_per_second
+    );
+    let columns = [
+        ("states", Align::Right),
+        ("k", Align::Right),
+        ("sets", Align::Right),
+        ("optimised", Align::Right),
+        ("pruned", Align::Right),
+        ("median s", Align::Right),
+        ("sets/s", Align::Right),
+        ("scorings/s in search", Align::Right),
+        ("raw scorings/s", Align::Right),
+    ];
+    tabulate(
+        &columns,
+        "states,max_pathways,sets,optimised,pruned,evaluations,median_seconds,scorings_per_second,raw_scorings_per_second",
+        &[(cells, line)],
+    )
 }
 
 /// Steady-state timings as (text table, CSV).

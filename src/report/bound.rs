@@ -17,6 +17,18 @@ pub struct BoundNumbers {
     pub relative_gap: f64,
 }
 
+impl BoundNumbers {
+    /// The bound's numbers in the model's units.
+    pub fn of(bound: &Bound, units: &crate::units::Units) -> Self {
+        Self {
+            power: units.from_kt(bound.power),
+            certified_upper: units.from_kt(bound.certified_upper),
+            headroom: units.from_kt(bound.headroom()),
+            relative_gap: bound.relative_gap(),
+        }
+    }
+}
+
 #[derive(Debug, Clone, Serialize)]
 pub struct PathwayJson {
     pub from: String,
@@ -24,6 +36,19 @@ pub struct PathwayJson {
     pub forward: f64,
     pub backward: f64,
     pub work: f64,
+}
+
+impl PathwayJson {
+    /// An added pathway with state names, rates per time unit and work in the model's unit.
+    pub fn of(p: &crate::bound::design::Pathway, model: &Model) -> Self {
+        Self {
+            from: model.state_names[p.from].clone(),
+            to: model.state_names[p.to].clone(),
+            forward: p.forward,
+            backward: p.backward,
+            work: model.units.from_kt(p.work),
+        }
+    }
 }
 
 /// A verified design: `achieved_power` is from an independent steady-state solve.
@@ -55,6 +80,12 @@ pub struct CappedJson {
 }
 
 #[derive(Debug, Clone, Serialize)]
+pub struct CappedFailure {
+    pub rate_cap: f64,
+    pub reason: String,
+}
+
+#[derive(Debug, Clone, Serialize)]
 pub struct BoundReport {
     pub title: String,
     pub units: UnitsJson,
@@ -70,6 +101,9 @@ pub struct BoundReport {
     pub target_fraction: f64,
     pub speed_table: Vec<SpeedRow>,
     pub rate_capped: Option<CappedJson>,
+    /// Why the rate-capped design is missing when a cap was asked for.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub rate_capped_failure: Option<CappedFailure>,
     /// `(largest added rate, share of the headroom)` along the tree design.
     pub speed_curve: Vec<(f64, f64)>,
     pub closed_forms: ClosedForms,
@@ -96,13 +130,7 @@ impl DesignJson {
             pathways: d
                 .pathways
                 .iter()
-                .map(|p| PathwayJson {
-                    from: model.state_names[p.from].clone(),
-                    to: model.state_names[p.to].clone(),
-                    forward: p.forward,
-                    backward: p.backward,
-                    work: u.from_kt(p.work),
-                })
+                .map(|p| PathwayJson::of(p, model))
                 .collect(),
             achieved_power: u.from_kt(d.verified.power),
             achieved_power_roundoff: u.from_kt(d.verified.roundoff),
@@ -138,12 +166,7 @@ impl BoundReport {
             pairs: describe_pairs(model, pairs),
             route: bound.route,
             baseline_power: u.from_kt(bound.baseline_power),
-            bound: BoundNumbers {
-                power: u.from_kt(bound.power),
-                certified_upper: u.from_kt(bound.certified_upper),
-                headroom: u.from_kt(bound.headroom()),
-                relative_gap: bound.relative_gap(),
-            },
+            bound: BoundNumbers::of(bound, u),
             benefit: u.from_kt(bound.benefit),
             maintenance_cost: u.from_kt(bound.maintenance),
             optimal_distribution: named_distribution(model, &bound.p),
@@ -161,6 +184,7 @@ impl BoundReport {
                 }),
                 strong_drive: None,
             },
+            rate_capped_failure: None,
             rate_capped: capped.map(|(rate_cap, d)| CappedJson {
                 rate_cap,
                 design: DesignJson::new(d, model, bound),
@@ -220,6 +244,13 @@ impl BoundReport {
                 num(c.rate_cap)
             ));
             out.push_str(&design_text(&c.design, p));
+        }
+        if let Some(f) = &self.rate_capped_failure {
+            out.push_str(&format!(
+                "\nBest design with every added rate <= {} /{t}: not available ({}). `ergopath design` searches such designs without relying on the conic solver alone.\n",
+                num(f.rate_cap),
+                f.reason
+            ));
         }
         out
     }
@@ -308,7 +339,7 @@ impl BoundReport {
 }
 
 /// `all pairs` or `A/B,C/D` with state names.
-fn describe_pairs(model: &Model, pairs: &PairSelection) -> String {
+pub fn describe_pairs(model: &Model, pairs: &PairSelection) -> String {
     match pairs {
         PairSelection::All => "all pairs".to_string(),
         PairSelection::Only(list) => list

@@ -8,9 +8,12 @@
 pub mod bench;
 pub mod bound;
 pub mod check;
+pub mod compare;
+pub mod design;
 pub mod output;
 pub mod steady;
 pub mod svg;
+pub mod sweep;
 pub mod table;
 
 use crate::model::Model;

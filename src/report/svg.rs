@@ -247,6 +247,111 @@ impl Chart {
     }
 }
 
+/// Grouped horizontal bars: one group per category, one bar per series.
+#[derive(Debug, Clone)]
+pub struct Bars {
+    pub title: String,
+    pub value_label: String,
+    pub categories: Vec<String>,
+    /// `(name, one value per category)`; `None` draws no bar.
+    pub series: Vec<(String, Vec<Option<f64>>)>,
+}
+
+impl Bars {
+    pub fn render(&self) -> String {
+        let values: Vec<f64> = self
+            .series
+            .iter()
+            .flat_map(|(_, v)| v.iter().flatten().copied())
+            .filter(|v| v.is_finite())
+            .collect();
+        let lo = values.iter().copied().fold(0.0, f64::min);
+        let hi = values.iter().copied().fold(0.0, f64::max);
+        let (xa, xb, ticks) = axis(lo, if hi > lo { hi } else { lo + 1.0 }, false);
+        let bar_h = 14.0;
+        let group_h = bar_h * self.series.len() as f64 + 14.0;
+        let left = 170.0;
+        let pw = WIDTH - left - RIGHT;
+        let ph = group_h * self.categories.len() as f64;
+        let height = TOP + ph + BOTTOM;
+        let fx = |x: f64| left + (x - xa) / (xb - xa) * pw;
+        let mut svg = String::new();
+        let _ = writeln!(
+            svg,
+            r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{height}" viewBox="0 0 {WIDTH} {height}" font-family="sans-serif" font-size="12">"#
+        );
+        let _ = writeln!(svg, r#"<rect width="100%" height="100%" fill="white"/>"#);
+        let _ = writeln!(
+            svg,
+            r#"<text x="{}" y="28" font-size="15" text-anchor="middle">{}</text>"#,
+            left + pw / 2.0,
+            escape(&self.title)
+        );
+        for &t in &ticks {
+            let x = fx(t);
+            let _ = writeln!(
+                svg,
+                r##"<line x1="{x:.1}" y1="{TOP}" x2="{x:.1}" y2="{:.1}" stroke="#e4e4e4"/><text x="{x:.1}" y="{:.1}" text-anchor="middle">{}</text>"##,
+                TOP + ph,
+                TOP + ph + 18.0,
+                label(t, false)
+            );
+        }
+        for (g, category) in self.categories.iter().enumerate() {
+            let y0 = TOP + g as f64 * group_h + 7.0;
+            let _ = writeln!(
+                svg,
+                r#"<text x="{:.1}" y="{:.1}" text-anchor="end">{}</text>"#,
+                left - 8.0,
+                y0 + group_h / 2.0 - 3.0,
+                escape(category)
+            );
+            for (s, (_, vals)) in self.series.iter().enumerate() {
+                let Some(v) = vals.get(g).copied().flatten().filter(|v| v.is_finite()) else {
+                    continue;
+                };
+                let (a, b) = (fx(v.min(0.0)), fx(v.max(0.0)));
+                let _ = writeln!(
+                    svg,
+                    r#"<rect x="{a:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="{}"/>"#,
+                    y0 + s as f64 * bar_h,
+                    (b - a).max(0.5),
+                    bar_h - 2.0,
+                    COLOURS[s % COLOURS.len()]
+                );
+            }
+        }
+        let _ = writeln!(
+            svg,
+            r##"<line x1="{:.1}" y1="{TOP}" x2="{:.1}" y2="{:.1}" stroke="#333"/>"##,
+            fx(0.0),
+            fx(0.0),
+            TOP + ph
+        );
+        let _ = writeln!(
+            svg,
+            r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">{}</text>"#,
+            left + pw / 2.0,
+            height - 15.0,
+            escape(&self.value_label)
+        );
+        for (s, (name, _)) in self.series.iter().enumerate() {
+            let (ly, kx) = (TOP + 14.0 + 20.0 * s as f64, left + pw + 12.0);
+            let _ = writeln!(
+                svg,
+                r#"<rect x="{kx:.1}" y="{:.1}" width="14" height="10" fill="{}"/><text x="{:.1}" y="{:.1}">{}</text>"#,
+                ly - 6.0,
+                COLOURS[s % COLOURS.len()],
+                kx + 20.0,
+                ly + 4.0,
+                escape(name)
+            );
+        }
+        svg.push_str("</svg>\n");
+        svg
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

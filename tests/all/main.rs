@@ -2,6 +2,7 @@
 
 mod bound;
 mod common;
+mod design;
 mod errors;
 mod published;
 mod reference;

@@ -9,6 +9,12 @@ use crate::report::{check::check_text, steady::SteadyReport};
 use crate::steady::{self, SolveError, SteadySettings};
 use std::path::Path;
 
+mod search;
+pub use search::{
+    compare, design, merge, sweep, BudgetFlags, CompareRequest, DesignRequest, SearchKnobs,
+    SweepRequest,
+};
+
 /// Errors of a command run, by boundary.
 #[derive(Debug, thiserror::Error)]
 pub enum Error {
@@ -127,8 +133,10 @@ pub struct BenchRequest {
     /// Largest network given to the conic route.
     pub conic_limit: usize,
     pub runs: usize,
-    /// Folder for `steady.csv` and `bound.csv`.
+    /// Folder for `steady.csv`, `bound.csv` and `design.csv`.
     pub out_dir: std::path::PathBuf,
+    /// `(states, max pathways)` of the design-search timing; `None` skips it.
+    pub design: Option<(usize, usize)>,
 }
 
 /// `ergopath bench`: timings on the seeded synthetic families, printed and written as CSV.
@@ -151,15 +159,35 @@ pub fn bench(request: &BenchRequest) -> Result<String, Error> {
     let (bound_table, bound_csv) = bound_tables(&bound_rows);
     let bound_path = request.out_dir.join("bound.csv");
     write_atomic(&bound_path, bound_csv.as_bytes())?;
-    Ok(format!(
-        "Steady-state solve, median of {runs} runs (2n channels each; random chords only up to {} states)\n\n{}\nCertified bound, all pairs (conic route up to {} states)\n\n{}\n  written: {}, {}\n",
+    let mut out = format!(
+        "Steady-state solve, median of {runs} runs (2n channels each; random chords only up to {} states)\n\n{}\nCertified bound, all pairs (conic route up to {} states)\n\n{}",
         crate::bench::RANDOM_CHORDS_LIMIT,
         table,
         request.conic_limit,
         bound_table,
-        steady_path.display(),
-        bound_path.display()
-    ))
+    );
+    let mut written = vec![steady_path, bound_path];
+    if let Some((states, k)) = request.design {
+        if !(3..=crate::search::evaluate::DENSE_LIMIT).contains(&states) || k == 0 {
+            return Err(Error::Usage(format!(
+                "design benchmark of {states} states and {k} pathways: give 3..{} states and at least one pathway",
+                crate::search::evaluate::DENSE_LIMIT
+            )));
+        }
+        let timing = crate::bench::time_design(states, k, runs)?;
+        let (design_table, design_csv) = crate::report::bench::design_tables(&timing);
+        let design_path = request.out_dir.join("design.csv");
+        write_atomic(&design_path, design_csv.as_bytes())?;
+        out.push_str(&format!(
+            "\nDesign search, random-chord network, all pairs, rate cap {}, top 10 (a scoring is one steady-state solve with its adjoint gradient)\n\n{}",
+            crate::bench::DESIGN_RATE_CAP,
+            design_table
+        ));
+        written.push(design_path);
+    }
+    let names: Vec<String> = written.iter().map(|p| p.display().to_string()).collect();
+    out.push_str(&format!("\n  written: {}\n", names.join(", ")));
+    Ok(out)
 }
 
 /// Settings of `ergopath bound` as given on the command line (model defaults fill the gaps).
@@ -174,6 +202,16 @@ pub struct BoundRequest {
     pub format: Format,
     /// Also write the report under `<save_root>/<model stem>/`.
     pub save_root: Option<std::path::PathBuf>,
+}
+
+/// The pair selection from `--pairs` text, else the model's `[pathways] pairs`, else all.
+fn resolve_pairs(model: &Model, text: Option<&str>) -> Result<PairSelection, Error> {
+    match text {
+        Some(text) => model
+            .parse_pairs(text)
+            .map_err(|e| Error::Usage(format!("--pairs: {e}"))),
+        None => Ok(model.pathways.pairs.clone().unwrap_or_default()),
+    }
 }
 
 /// Largest model for which the capped design may consider every pair of states.
@@ -193,12 +231,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
             request.target
         )));
     }
-    let pairs = match &request.pairs {
-        Some(text) => model
-            .parse_pairs(text)
-            .map_err(|e| Error::Usage(format!("--pairs: {e}")))?,
-        None => model.pathways.pairs.clone().unwrap_or_default(),
-    };
+    let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
     let rate_cap = request.rate_cap.or(model.pathways.rate_cap);
     if let Some(cap) = rate_cap.filter(|c| !(c.is_finite() && *c > 0.0)) {
         return Err(Error::Usage(format!(
@@ -217,11 +250,15 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
     let solved = bound::solve(net, &pairs, &BoundSettings::default())?;
     let attaining =
         design::attaining(net, &solved, &pairs, request.target, &SPEED_TABLE_FRACTIONS)?;
-    let capped = match rate_cap {
-        Some(cap) => Some((cap, design::capped_design(net, &pairs, cap)?)),
-        None => None,
-    };
-    let report = BoundReport::new(
+    // A conic failure on the capped program loses only that section: the bound and the
+    // attaining design stand on their own, and the report says what failed.
+    let (capped, capped_failure) =
+        match rate_cap.map(|cap| (cap, design::capped_design(net, &pairs, cap))) {
+            Some((cap, Ok(d))) => (Some((cap, d)), None),
+            Some((cap, Err(e))) => (None, Some((cap, e.to_string()))),
+            None => (None, None),
+        };
+    let mut report = BoundReport::new(
         &model,
         &solved,
         &pairs,
@@ -235,6 +272,8 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
             .ok()
             .map(|e| e.headroom),
     );
+    report.rate_capped_failure = capped_failure
+        .map(|(rate_cap, reason)| crate::report::bound::CappedFailure { rate_cap, reason });
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,

@@ -1,0 +1,571 @@
+//! Entry points of the search commands: `design`, `merge`, `sweep`, `compare`.
+//!
+//! Turns flags and model defaults into a [`Budget`], runs the bound and the search, and hands
+//! the outcome to the reports. Like the rest of [`crate::commands`], nothing here prints.
+
+use super::{emit, resolve_pairs, Error, Format, Rendered};
+use crate::bound::{self, design, Bound, BoundSettings};
+use crate::model::{Model, PairSelection};
+use crate::progress::Bar;
+use crate::report::compare::{CompareReport, CompareRow};
+use crate::report::design::{BudgetJson, DesignReport};
+use crate::report::output::{to_json, write_atomic};
+use crate::report::sweep::{SweepPoint, SweepReport};
+use crate::search::{
+    self, Budget, Observer, Outcome, Part, SearchError, SearchSettings, Searcher, Shard, Silent,
+};
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
+
+impl From<SearchError> for Error {
+    fn from(e: SearchError) -> Self {
+        match e {
+            SearchError::Solve(s) => Error::Solve(s),
+            other => Error::Usage(other.to_string()),
+        }
+    }
+}
+
+/// Budget flags; `None` falls back to the model's `[pathways]` table. Work in the model's unit.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct BudgetFlags {
+    pub max_pathways: Option<usize>,
+    pub rate_cap: Option<f64>,
+    pub total_rate: Option<f64>,
+    pub work_limit: Option<f64>,
+}
+
+/// Default number of added pathways when neither a flag nor the model gives one.
+pub const DEFAULT_MAX_PATHWAYS: usize = 2;
+
+/// The budget from flags, then model defaults, checked for sense.
+fn resolve_budget(model: &Model, flags: &BudgetFlags) -> Result<Budget, Error> {
+    let d = &model.pathways;
+    let time = model.units.time.name();
+    let budget = Budget {
+        max_pathways: flags
+            .max_pathways
+            .or(d.max_pathways)
+            .unwrap_or(DEFAULT_MAX_PATHWAYS),
+        rate_cap: flags.rate_cap.or(d.rate_cap),
+        total_rate: flags.total_rate.or(d.total_rate),
+        work_limit: flags
+            .work_limit
+            .map(|w| model.units.to_kt(w))
+            .or(d.work_limit),
+    };
+    if budget.max_pathways == 0 {
+        return Err(Error::Usage(
+            "--max-pathways 0 allows no added pathway: give 1 or more".into(),
+        ));
+    }
+    for (name, value) in [
+        ("--rate-cap", budget.rate_cap),
+        ("--total-rate", budget.total_rate),
+    ] {
+        if let Some(v) = value.filter(|v| !(v.is_finite() && *v > 0.0)) {
+            return Err(Error::Usage(format!(
+                "{name} {v}: give a positive rate per {time}"
+            )));
+        }
+    }
+    if let Some(w) = budget.work_limit.filter(|w| !(w.is_finite() && *w > 0.0)) {
+        return Err(Error::Usage(format!(
+            "--work-limit {}: give a positive energy in {} (the largest |work per jump| of a pathway)",
+            model.units.from_kt(w),
+            model.units.energy.name()
+        )));
+    }
+    Ok(budget)
+}
+
+/// Candidate pairs `(a, b)` of a selection.
+fn candidate_pairs(model: &Model, pairs: &PairSelection) -> Vec<(usize, usize)> {
+    design::candidates(model.network.len(), pairs)
+        .into_iter()
+        .map(|c| (c.a, c.b))
+        .collect()
+}
+
+/// `all pairs` or `A/B, C/D`.
+fn describe(model: &Model, pairs: &PairSelection) -> String {
+    crate::report::bound::describe_pairs(model, pairs)
+}
+
+/// Search knobs shared by `design`, `sweep` and `compare`.
+#[derive(Debug, Clone, Copy)]
+pub struct SearchKnobs {
+    pub top: usize,
+    pub starts: usize,
+    pub seed: u64,
+    pub exhaustive_limit: u64,
+    pub beam_width: usize,
+    /// Worker threads (0: one per core).
+    pub threads: usize,
+    pub quiet: bool,
+}
+
+impl Default for SearchKnobs {
+    fn default() -> Self {
+        let s = SearchSettings::new(Budget {
+            max_pathways: 1,
+            rate_cap: None,
+            total_rate: None,
+            work_limit: None,
+        });
+        Self {
+            top: s.top,
+            starts: s.starts,
+            seed: s.seed,
+            exhaustive_limit: s.exhaustive_limit,
+            beam_width: s.beam_width,
+            threads: 0,
+            quiet: false,
+        }
+    }
+}
+
+impl SearchKnobs {
+    fn settings(&self, budget: Budget) -> Result<SearchSettings, Error> {
+        if self.top == 0 {
+            return Err(Error::Usage("--top 0 shows nothing: give 1 or more".into()));
+        }
+        if self.beam_width == 0 {
+            return Err(Error::Usage(
+                "--beam-width 0 keeps nothing: give 1 or more".into(),
+            ));
+        }
+        Ok(SearchSettings {
+            budget,
+            top: self.top,
+            starts: self.starts,
+            seed: self.seed,
+            exhaustive_limit: self.exhaustive_limit,
+            beam_width: self.beam_width,
+        })
+    }
+
+    /// Runs `work` on a pool of the requested size.
+    fn in_pool<T: Send>(&self, work: impl FnOnce() -> T + Send) -> Result<T, Error> {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(self.threads)
+            .build()
+            .map_err(|e| Error::Usage(format!("--threads {}: {e}", self.threads)))?;
+        Ok(pool.install(work))
+    }
+
+    fn bar(&self, model: &Model) -> Bar {
+        Bar::new(
+            self.quiet,
+            model.units.power_label(),
+            model.units.from_kt(1.0),
+        )
+    }
+}
+
+/// The bound for the selection (its headroom scales the search and the shares).
+fn solve_bound(model: &Model, pairs: &PairSelection) -> Result<Bound, Error> {
+    Ok(bound::solve(
+        &model.network,
+        pairs,
+        &BoundSettings::default(),
+    )?)
+}
+
+/// Runs one whole search on a loaded model.
+fn search_model(
+    model: &Model,
+    pairs: &PairSelection,
+    bound: &Bound,
+    settings: SearchSettings,
+    knobs: &SearchKnobs,
+    observer: &dyn Observer,
+) -> Result<Outcome, Error> {
+    let searcher = Searcher::new(
+        &model.network,
+        candidate_pairs(model, pairs),
+        settings,
+        (bound.baseline_power, bound.headroom()),
+    )?;
+    let part = knobs.in_pool(|| searcher.run(Shard::WHOLE, observer))??;
+    Ok(search::merge(vec![part])?)
+}
+
+/// Settings of `ergopath design`.
+#[derive(Debug, Clone, Default)]
+pub struct DesignRequest {
+    pub pairs: Option<String>,
+    pub budget: BudgetFlags,
+    pub knobs: SearchKnobs,
+    /// `Some((i, N))`: score only shard i of N and write a part file.
+    pub shard: Option<(usize, usize)>,
+    pub format: Format,
+    pub save_root: Option<PathBuf>,
+}
+
+/// A shard's result on disk: the search part and what `merge` needs to rebuild the report.
+#[derive(Debug, Serialize, Deserialize)]
+struct PartFile {
+    /// Model file as given to `design`.
+    model: PathBuf,
+    /// Allowed pairs (`None`: all).
+    pairs: Option<Vec<(usize, usize)>>,
+    part: Part,
+}
+
+fn selection_of(pairs: &PairSelection) -> Option<Vec<(usize, usize)>> {
+    match pairs {
+        PairSelection::All => None,
+        PairSelection::Only(list) => Some(list.clone()),
+    }
+}
+
+/// `ergopath design`: ranked designs within the budget; with a shard, writes its part file.
+pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
+    let model = Model::load(path)?;
+    let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
+    let settings = request
+        .knobs
+        .settings(resolve_budget(&model, &request.budget)?)?;
+    let bound = solve_bound(&model, &pairs)?;
+    let bar = request.knobs.bar(&model);
+    let Some((index, count)) = request.shard else {
+        let outcome = search_model(&model, &pairs, &bound, settings, &request.knobs, &bar)?;
+        return design_output(
+            &model,
+            &pairs,
+            &bound,
+            &outcome,
+            request.format,
+            request.save_root.as_deref(),
+        );
+    };
+    let searcher = Searcher::new(
+        &model.network,
+        candidate_pairs(&model, &pairs),
+        settings,
+        (bound.baseline_power, bound.headroom()),
+    )?;
+    let part = request
+        .knobs
+        .in_pool(|| searcher.run(Shard { index, count }, &bar))??;
+    let file = PartFile {
+        model: path.to_path_buf(),
+        pairs: selection_of(&pairs),
+        part,
+    };
+    let root = request
+        .save_root
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("results"));
+    let out = root
+        .join(model.stem())
+        .join(format!("design-part-{index}-of-{count}.json"));
+    write_atomic(&out, to_json(&file)?.as_bytes())?;
+    let scored: u64 = file.part.branches.iter().map(|b| b.scored).sum();
+    Ok(format!(
+        "shard {index}/{count}: {} branches, {scored} sets scored beyond the {} single pathways\n  written: {}\n  combine all {count} parts with: ergopath merge {}\n",
+        file.part.branches.len(),
+        file.part.singles,
+        out.display(),
+        root.join(model.stem()).join(format!("design-part-*-of-{count}.json")).display()
+    ))
+}
+
+fn design_output(
+    model: &Model,
+    pairs: &PairSelection,
+    bound: &Bound,
+    outcome: &Outcome,
+    format: Format,
+    save_root: Option<&Path>,
+) -> Result<String, Error> {
+    let report = DesignReport::new(model, bound, describe(model, pairs), outcome);
+    let rendered = Rendered {
+        text: report.text(),
+        json: to_json(&report)?,
+        csv: Some(report.csv()),
+        svg: report.svg(),
+    };
+    emit(model, "design", format, save_root, rendered)
+}
+
+/// `ergopath merge`: combines shard part files into the ranking one run would give.
+pub fn merge(
+    parts: &[PathBuf],
+    model_override: Option<&Path>,
+    format: Format,
+    save_root: Option<&Path>,
+) -> Result<String, Error> {
+    let mut files = Vec::with_capacity(parts.len());
+    for path in parts {
+        let text = std::fs::read_to_string(path).map_err(|e| {
+            Error::Usage(format!(
+                "{}: cannot read the part file ({e})",
+                path.display()
+            ))
+        })?;
+        let file: PartFile = serde_json::from_str(&text).map_err(|e| {
+            Error::Usage(format!(
+                "{}: not a part file written by `ergopath design --shard` ({e}); give the design-part-*-of-N.json files",
+                path.display()
+            ))
+        })?;
+        files.push(file);
+    }
+    let Some(first) = files.first() else {
+        return Err(Error::Usage("give the part files to merge".into()));
+    };
+    let model_path = model_override.map_or_else(|| first.model.clone(), Path::to_path_buf);
+    let model = Model::load(&model_path)?;
+    if search::fingerprint(&model.network) != first.part.fingerprint {
+        return Err(Error::Usage(format!(
+            "{} is not the model the parts were computed for (it has changed or is another file): give the original with --model PATH",
+            model_path.display()
+        )));
+    }
+    let pairs = match &first.pairs {
+        None => PairSelection::All,
+        Some(list) => PairSelection::Only(list.clone()),
+    };
+    let outcome = search::merge(files.into_iter().map(|f| f.part).collect())?;
+    let bound = solve_bound(&model, &pairs)?;
+    design_output(&model, &pairs, &bound, &outcome, format, save_root)
+}
+
+/// A budget quantity a sweep can vary.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SweepOver {
+    RateCap,
+    TotalRate,
+    MaxPathways,
+    WorkLimit,
+}
+
+impl SweepOver {
+    pub fn name(self) -> &'static str {
+        match self {
+            SweepOver::RateCap => "rate-cap",
+            SweepOver::TotalRate => "total-rate",
+            SweepOver::MaxPathways => "max-pathways",
+            SweepOver::WorkLimit => "work-limit",
+        }
+    }
+
+    fn parse(name: &str) -> Option<Self> {
+        [
+            Self::RateCap,
+            Self::TotalRate,
+            Self::MaxPathways,
+            Self::WorkLimit,
+        ]
+        .into_iter()
+        .find(|o| o.name() == name)
+    }
+}
+
+/// Settings of `ergopath sweep`.
+#[derive(Debug, Clone, Default)]
+pub struct SweepRequest {
+    pub pairs: Option<String>,
+    pub budget: BudgetFlags,
+    pub knobs: SearchKnobs,
+    /// `rate-cap=1..1e6` and the like.
+    pub over: String,
+    pub points: usize,
+    pub format: Format,
+    pub save_root: Option<PathBuf>,
+}
+
+/// Parses `NAME=A..B` into the quantity and its values (log-spaced for rates and wide ranges,
+/// every integer for `max-pathways`).
+fn sweep_values(over: &str, points: usize) -> Result<(SweepOver, Vec<f64>), Error> {
+    let usage = |why: &str| {
+        Error::Usage(format!(
+            "--over {over}: {why}; give NAME=FROM..TO with NAME one of rate-cap, total-rate, max-pathways, work-limit (e.g. rate-cap=1..1e6)"
+        ))
+    };
+    let (name, range) = over.split_once('=').ok_or_else(|| usage("no '='"))?;
+    let quantity = SweepOver::parse(name.trim()).ok_or_else(|| usage("unknown budget name"))?;
+    let (a, b) = range
+        .split_once("..")
+        .ok_or_else(|| usage("no '..' in the range"))?;
+    let parse = |s: &str| {
+        s.trim()
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite() && *v > 0.0)
+    };
+    let (Some(lo), Some(hi)) = (parse(a), parse(b)) else {
+        return Err(usage("the range ends must be positive numbers"));
+    };
+    if hi <= lo {
+        return Err(usage("the range must run from a smaller to a larger value"));
+    }
+    if quantity == SweepOver::MaxPathways {
+        let (lo, hi) = (lo.ceil() as usize, hi.floor() as usize);
+        if lo > hi || hi > 16 {
+            return Err(usage("max-pathways takes whole numbers between 1 and 16"));
+        }
+        return Ok((quantity, (lo..=hi).map(|k| k as f64).collect()));
+    }
+    if points < 2 {
+        return Err(Error::Usage(format!(
+            "--points {points}: a sweep needs at least 2 points"
+        )));
+    }
+    let log = quantity != SweepOver::WorkLimit || hi / lo >= 100.0;
+    let values = (0..points)
+        .map(|i| {
+            let t = i as f64 / (points - 1) as f64;
+            if log {
+                lo * (hi / lo).powf(t)
+            } else {
+                lo + (hi - lo) * t
+            }
+        })
+        .collect();
+    Ok((quantity, values))
+}
+
+fn with_value(mut flags: BudgetFlags, over: SweepOver, value: f64) -> BudgetFlags {
+    match over {
+        SweepOver::RateCap => flags.rate_cap = Some(value),
+        SweepOver::TotalRate => flags.total_rate = Some(value),
+        SweepOver::MaxPathways => flags.max_pathways = Some(value as usize),
+        SweepOver::WorkLimit => flags.work_limit = Some(value),
+    }
+    flags
+}
+
+/// `ergopath sweep`: the best design at each budget value beside the universal bound.
+pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
+    let model = Model::load(path)?;
+    let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
+    let (over, values) = sweep_values(&request.over, request.points)?;
+    let bound = solve_bound(&model, &pairs)?;
+    let knobs = SearchKnobs {
+        top: 1,
+        ..request.knobs
+    };
+    let bar = knobs.bar(&model);
+    bar.start(values.len() as u64, "budget points");
+    let mut points: Vec<SweepPoint> = Vec::with_capacity(values.len());
+    let mut best_so_far: Option<search::Found> = None;
+    for &value in &values {
+        let budget = resolve_budget(&model, &with_value(request.budget, over, value))?;
+        let settings = knobs.settings(budget)?;
+        let outcome = search_model(&model, &pairs, &bound, settings, &knobs, &Silent)?;
+        // A design that met a tighter budget meets this one too, so the best never falls.
+        let mut best = outcome.designs.first().cloned();
+        let carried = match (&best, &best_so_far) {
+            (Some(now), Some(before)) if before.power > now.power => {
+                best = Some(before.clone());
+                true
+            }
+            _ => false,
+        };
+        if let Some(b) = &best {
+            best_so_far = Some(b.clone());
+        }
+        let relaxation = Searcher::new(
+            &model.network,
+            candidate_pairs(&model, &pairs),
+            settings,
+            (bound.baseline_power, bound.headroom()),
+        )?
+        .relaxation_all();
+        bar.advance(
+            outcome.evaluated,
+            best.as_ref().map_or(f64::NAN, |b| b.power),
+        );
+        points.push(SweepPoint::new(
+            &model,
+            &bound,
+            value,
+            best.as_ref(),
+            carried,
+            outcome.evaluated,
+            relaxation,
+        ));
+    }
+    bar.finish();
+    let first = resolve_budget(&model, &with_value(request.budget, over, values[0]))?;
+    let report = SweepReport::new(
+        &model,
+        &bound,
+        describe(&model, &pairs),
+        over.name(),
+        BudgetJson::of(&first, &model),
+        points,
+    );
+    let rendered = Rendered {
+        text: report.text(),
+        json: to_json(&report)?,
+        csv: Some(report.csv()),
+        svg: Some(report.svg()),
+    };
+    emit(
+        &model,
+        &format!("sweep-{}", over.name()),
+        request.format,
+        request.save_root.as_deref(),
+        rendered,
+    )
+}
+
+/// Settings of `ergopath compare`.
+#[derive(Debug, Clone, Default)]
+pub struct CompareRequest {
+    pub budget: BudgetFlags,
+    pub knobs: SearchKnobs,
+    pub format: Format,
+    pub save_root: Option<PathBuf>,
+}
+
+/// `ergopath compare`: ranks alternative architectures by bound and best power at a budget.
+pub fn compare(paths: &[PathBuf], request: &CompareRequest) -> Result<String, Error> {
+    if paths.len() < 2 {
+        return Err(Error::Usage(
+            "compare needs two or more model files: ergopath compare A.toml B.toml".into(),
+        ));
+    }
+    let models = paths
+        .iter()
+        .map(|p| Model::load(p))
+        .collect::<Result<Vec<_>, _>>()?;
+    let knobs = SearchKnobs {
+        top: 1,
+        ..request.knobs
+    };
+    let mut rows = Vec::with_capacity(models.len());
+    for model in &models {
+        let pairs = model.pathways.pairs.clone().unwrap_or_default();
+        let bound = solve_bound(model, &pairs)?;
+        let budget = resolve_budget(model, &request.budget)?;
+        let best = if budget.relaxed_cap().is_some() {
+            let settings = knobs.settings(budget)?;
+            let outcome = search_model(model, &pairs, &bound, settings, &knobs, &knobs.bar(model))?;
+            outcome.designs.first().map(|d| (d.clone(), budget))
+        } else {
+            None
+        };
+        rows.push(CompareRow::new(model, &bound, best.as_ref()));
+    }
+    let report = CompareReport::new(rows);
+    let rendered = Rendered {
+        text: report.text(),
+        json: to_json(&report)?,
+        csv: Some(report.csv()),
+        svg: Some(report.svg()),
+    };
+    let Some(root) = request.save_root.as_deref() else {
+        return emit(&models[0], "compare", request.format, None, rendered);
+    };
+    // Results of a comparison belong to no single model: they go to results/compare/.
+    let holder = Model {
+        source: PathBuf::from("compare"),
+        ..models[0].clone()
+    };
+    emit(&holder, "compare", request.format, Some(root), rendered)
+}

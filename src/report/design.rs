@@ -1,0 +1,294 @@
+//! The `design` report: the budget, how the search went, and the ranked designs with their
+//! pathways, verified power, share of the headroom and cost figures; as text, JSON, CSV and a
+//! chart of the share of the headroom by rank.
+
+use super::bound::{BoundNumbers, PathwayJson};
+use super::table::{num, percent, sci, wrap, Align, Table};
+use super::{csv_field, UnitsJson};
+use crate::bound::Bound;
+use crate::model::Model;
+use crate::search::{Budget, Found, Outcome};
+use serde::Serialize;
+
+/// The limits used, in the model's units.
+#[derive(Debug, Clone, Serialize)]
+pub struct BudgetJson {
+    pub max_pathways: usize,
+    pub rate_cap: Option<f64>,
+    pub total_rate: Option<f64>,
+    pub work_limit: Option<f64>,
+}
+
+impl BudgetJson {
+    pub fn of(budget: &Budget, model: &Model) -> Self {
+        Self {
+            max_pathways: budget.max_pathways,
+            rate_cap: budget.rate_cap,
+            total_rate: budget.total_rate,
+            work_limit: budget.work_limit.map(|w| model.units.from_kt(w)),
+        }
+    }
+
+    /// `up to 2 pathways, each rate <= 1000 /s, ...`.
+    pub fn describe(&self, units: &UnitsJson) -> String {
+        let mut parts = vec![format!(
+            "up to {} pathway{}",
+            self.max_pathways,
+            if self.max_pathways == 1 { "" } else { "s" }
+        )];
+        if let Some(c) = self.rate_cap {
+            parts.push(format!("each rate <= {} /{}", num(c), units.time));
+        }
+        if let Some(t) = self.total_rate {
+            parts.push(format!(
+                "all added rates together <= {} /{}",
+                num(t),
+                units.time
+            ));
+        }
+        if let Some(w) = self.work_limit {
+            parts.push(format!("|work per jump| <= {} {}", num(w), units.energy));
+        }
+        parts.join(", ")
+    }
+}
+
+/// How the search went.
+#[derive(Debug, Clone, Serialize)]
+pub struct SearchJson {
+    pub strategy: &'static str,
+    pub candidate_pairs: usize,
+    /// Pathway sets of sizes 1..k.
+    pub space: u64,
+    pub pruned: u64,
+    /// Steady-state evaluations spent.
+    pub scorings: u64,
+    pub starts: usize,
+    pub seed: u64,
+}
+
+/// One ranked design.
+#[derive(Debug, Clone, Serialize)]
+pub struct RankedDesign {
+    pub rank: usize,
+    pub pathways: Vec<PathwayJson>,
+    /// Total power of baseline plus the pathways, from an independent steady-state solve.
+    pub achieved_power: f64,
+    pub achieved_power_roundoff: f64,
+    pub fraction_of_headroom: Option<f64>,
+    /// Sum of all added rates, both directions.
+    pub total_rate: f64,
+    /// Largest |work per jump| of the pathways.
+    pub largest_work: f64,
+    /// Entropy production of the added pathways (k_B per time unit).
+    pub added_entropy_production: f64,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct DesignReport {
+    pub title: String,
+    pub units: UnitsJson,
+    pub pairs: String,
+    pub baseline_power: f64,
+    pub bound: BoundNumbers,
+    pub budget: BudgetJson,
+    pub search: SearchJson,
+    /// Pathway sets scored.
+    pub evaluated: u64,
+    pub designs: Vec<RankedDesign>,
+}
+
+impl RankedDesign {
+    fn new(rank: usize, found: &Found, model: &Model, bound: &Bound) -> Self {
+        let u = &model.units;
+        let pathways = found.pathways(&model.network);
+        let (power, roundoff) = found.verified.unwrap_or((found.power, f64::NAN));
+        let headroom = bound.headroom();
+        Self {
+            rank,
+            pathways: pathways.iter().map(|p| PathwayJson::of(p, model)).collect(),
+            achieved_power: u.from_kt(power),
+            achieved_power_roundoff: u.from_kt(roundoff),
+            fraction_of_headroom: (headroom > 0.0)
+                .then(|| (power - bound.baseline_power) / headroom),
+            total_rate: pathways.iter().map(|p| p.forward + p.backward).sum(),
+            largest_work: u.from_kt(pathways.iter().map(|p| p.work.abs()).fold(0.0, f64::max)),
+            added_entropy_production: found.added_entropy,
+        }
+    }
+}
+
+impl DesignReport {
+    pub fn new(model: &Model, bound: &Bound, pairs: String, outcome: &Outcome) -> Self {
+        let s = &outcome.settings;
+        Self {
+            title: model.title.clone(),
+            units: UnitsJson::of(model),
+            pairs,
+            baseline_power: model.units.from_kt(bound.baseline_power),
+            bound: BoundNumbers::of(bound, &model.units),
+            budget: BudgetJson::of(&s.budget, model),
+            search: SearchJson {
+                strategy: outcome.strategy.describe(),
+                candidate_pairs: outcome.candidate_pairs,
+                space: outcome.space,
+                pruned: outcome.pruned,
+                scorings: outcome.scorings,
+                starts: s.starts,
+                seed: s.seed,
+            },
+            evaluated: outcome.evaluated,
+            designs: outcome
+                .designs
+                .iter()
+                .enumerate()
+                .map(|(i, f)| RankedDesign::new(i + 1, f, model, bound))
+                .collect(),
+        }
+    }
+
+    pub fn text(&self) -> String {
+        let (p, t, e) = (&self.units.power, &self.units.time, &self.units.energy);
+        let search = &self.search;
+        let mut out = format!(
+            "Design search for {}\n{}\n{}\n",
+            self.title,
+            wrap(
+                &format!("budget: {}", self.budget.describe(&self.units)),
+                "  ",
+                78
+            ),
+            wrap(&format!("added pathways on: {}", self.pairs), "  ", 78),
+        );
+        out.push_str(&format!(
+            "  search: {}; {} pathway sets from {} candidate pairs, {} scored, {} pruned ({}), {} steady-state evaluations\n\n",
+            search.strategy,
+            search.space,
+            search.candidate_pairs,
+            self.evaluated,
+            search.pruned,
+            percent(search.pruned as f64 / search.space.max(1) as f64),
+            search.scorings
+        ));
+        out.push_str(&format!(
+            "  baseline power    {} {p}\n  universal bound   {} {p}  (headroom {})\n\n",
+            num(self.baseline_power),
+            num(self.bound.power),
+            num(self.bound.headroom)
+        ));
+        let mut ranking = Table::new(&[
+            ("rank", Align::Right),
+            (&format!("power {p}"), Align::Right),
+            ("share of headroom", Align::Right),
+            (&format!("total rate /{t}"), Align::Right),
+            (&format!("max |work| {e}"), Align::Right),
+            (&format!("added entropy k_B/{t}"), Align::Right),
+            ("pathways", Align::Left),
+        ]);
+        for d in &self.designs {
+            let names: Vec<String> = d
+                .pathways
+                .iter()
+                .map(|w| format!("{}-{}", w.from, w.to))
+                .collect();
+            ranking.row(vec![
+                d.rank.to_string(),
+                num(d.achieved_power),
+                d.fraction_of_headroom.map_or("-".into(), percent),
+                num(d.total_rate),
+                num(d.largest_work),
+                num(d.added_entropy_production),
+                names.join(", "),
+            ]);
+        }
+        out.push_str(&ranking.render());
+        let mut rates = Table::new(&[
+            ("rank", Align::Right),
+            ("pathway", Align::Left),
+            (&format!("forward /{t}"), Align::Right),
+            (&format!("backward /{t}"), Align::Right),
+            (&format!("work/jump {e}"), Align::Right),
+        ]);
+        for d in &self.designs {
+            for w in &d.pathways {
+                rates.row(vec![
+                    d.rank.to_string(),
+                    format!("{} -> {}", w.from, w.to),
+                    sci(w.forward),
+                    sci(w.backward),
+                    num(w.work),
+                ]);
+            }
+        }
+        out.push_str(
+            "\nRates of the ranked designs (each verified by an independent steady-state solve):\n",
+        );
+        out.push_str(&rates.render());
+        out
+    }
+
+    /// One row per pathway of every ranked design.
+    pub fn csv(&self) -> String {
+        let mut out = String::from("rank,achieved_power,fraction_of_headroom,total_rate,largest_work,added_entropy_production,from,to,forward,backward,work\n");
+        for d in &self.designs {
+            for w in &d.pathways {
+                out.push_str(&format!(
+                    "{},{},{},{},{},{},{},{},{},{},{}\n",
+                    d.rank,
+                    d.achieved_power,
+                    d.fraction_of_headroom
+                        .map_or(String::new(), |f| f.to_string()),
+                    d.total_rate,
+                    d.largest_work,
+                    d.added_entropy_production,
+                    csv_field(&w.from),
+                    csv_field(&w.to),
+                    w.forward,
+                    w.backward,
+                    w.work
+                ));
+            }
+        }
+        out
+    }
+
+    /// Share of the headroom by rank, with the universal bound as a dashed line.
+    pub fn svg(&self) -> Option<String> {
+        use super::svg::{Chart, Series};
+        let points: Vec<(f64, f64)> = self
+            .designs
+            .iter()
+            .filter_map(|d| d.fraction_of_headroom.map(|f| (d.rank as f64, f)))
+            .collect();
+        if points.is_empty() {
+            return None;
+        }
+        let last = points.len().max(2) as f64;
+        Some(
+            Chart {
+                title: format!("Best designs within the budget: {}", self.title),
+                x_label: "rank".into(),
+                y_label: "share of the headroom reached".into(),
+                log_x: false,
+                log_y: false,
+                series: vec![
+                    Series {
+                        name: "ranked designs".into(),
+                        points,
+                        dashed: false,
+                        markers: true,
+                        joined: false,
+                    },
+                    Series {
+                        name: "universal bound".into(),
+                        points: vec![(1.0, 1.0), (last, 1.0)],
+                        dashed: true,
+                        markers: false,
+                        joined: true,
+                    },
+                ],
+            }
+            .render(),
+        )
+    }
+}

@@ -1,0 +1,233 @@
+//! The `sweep` report: the best design found at each value of one budget quantity, beside the
+//! capped relaxation (an upper bound at that budget) and the universal bound; as text, JSON,
+//! CSV and a chart of power against the budget.
+
+use super::bound::{BoundNumbers, PathwayJson};
+use super::design::BudgetJson;
+use super::table::{num, percent, wrap, Align, Table};
+use super::UnitsJson;
+use crate::bound::Bound;
+use crate::model::Model;
+use crate::search::Found;
+use serde::Serialize;
+
+/// One budget value and the best design found there.
+#[derive(Debug, Clone, Serialize)]
+pub struct SweepPoint {
+    pub value: f64,
+    /// Verified power of the best design (model units); `None` if nothing was found.
+    pub best_power: Option<f64>,
+    pub fraction_of_headroom: Option<f64>,
+    pub pathways: Vec<PathwayJson>,
+    /// Pathway sets scored at this value.
+    pub evaluated: u64,
+    /// The best design is the one found at a tighter budget (still within this one), because
+    /// the search at this value found nothing better.
+    pub carried_over: bool,
+    /// Capped convex relaxation over all candidate pairs: no design within the budget exceeds
+    /// it, whatever the number of pathways.
+    pub relaxation: Option<f64>,
+}
+
+impl SweepPoint {
+    pub fn new(
+        model: &Model,
+        bound: &Bound,
+        value: f64,
+        best: Option<&Found>,
+        carried_over: bool,
+        evaluated: u64,
+        relaxation: f64,
+    ) -> Self {
+        let u = &model.units;
+        let power = best.map(|f| f.verified.map_or(f.power, |v| v.0));
+        let headroom = bound.headroom();
+        Self {
+            value,
+            best_power: power.map(|p| u.from_kt(p)),
+            fraction_of_headroom: power
+                .filter(|_| headroom > 0.0)
+                .map(|p| (p - bound.baseline_power) / headroom),
+            pathways: best.map_or_else(Vec::new, |f| {
+                f.pathways(&model.network)
+                    .iter()
+                    .map(|p| PathwayJson::of(p, model))
+                    .collect()
+            }),
+            evaluated,
+            carried_over,
+            relaxation: relaxation.is_finite().then(|| u.from_kt(relaxation)),
+        }
+    }
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct SweepReport {
+    pub title: String,
+    pub units: UnitsJson,
+    pub pairs: String,
+    /// The budget quantity varied (`rate-cap`, `total-rate`, `max-pathways`, `work-limit`).
+    pub over: &'static str,
+    /// The budget at the first value (the other limits stay as they are).
+    pub budget: BudgetJson,
+    pub baseline_power: f64,
+    pub bound: BoundNumbers,
+    pub points: Vec<SweepPoint>,
+}
+
+impl SweepReport {
+    pub fn new(
+        model: &Model,
+        bound: &Bound,
+        pairs: String,
+        over: &'static str,
+        budget: BudgetJson,
+        points: Vec<SweepPoint>,
+    ) -> Self {
+        Self {
+            title: model.title.clone(),
+            units: UnitsJson::of(model),
+            pairs,
+            over,
+            budget,
+            baseline_power: model.units.from_kt(bound.baseline_power),
+            bound: BoundNumbers::of(bound, &model.units),
+            points,
+        }
+    }
+
+    fn value_unit(&self) -> String {
+        match self.over {
+            "rate-cap" | "total-rate" => format!("/{}", self.units.time),
+            "work-limit" => self.units.energy.to_string(),
+            _ => String::new(),
+        }
+    }
+
+    pub fn text(&self) -> String {
+        let p = &self.units.power;
+        let mut out = format!(
+            "Budget sweep over {} for {}\n{}\n{}\n  baseline power    {} {p}\n  universal bound   {} {p}\n\n",
+            self.over,
+            self.title,
+            wrap(
+                &format!(
+                    "budget at the first point: {} ({} varies)",
+                    self.budget.describe(&self.units),
+                    self.over
+                ),
+                "  ",
+                78
+            ),
+            wrap(&format!("added pathways on: {}", self.pairs), "  ", 78),
+            num(self.baseline_power),
+            num(self.bound.power),
+        );
+        let mut table = Table::new(&[
+            (
+                &format!("{} {}", self.over, self.value_unit()),
+                Align::Right,
+            ),
+            (&format!("best power {p}"), Align::Right),
+            ("share of headroom", Align::Right),
+            ("upper bound at budget", Align::Right),
+            ("sets scored", Align::Right),
+            ("pathways", Align::Left),
+        ]);
+        for pt in &self.points {
+            let names: Vec<String> = pt
+                .pathways
+                .iter()
+                .map(|w| format!("{}-{}", w.from, w.to))
+                .collect();
+            table.row(vec![
+                num(pt.value),
+                pt.best_power.map_or("-".into(), num),
+                pt.fraction_of_headroom.map_or("-".into(), percent),
+                pt.relaxation.map_or("-".into(), num),
+                pt.evaluated.to_string(),
+                names.join(", ") + if pt.carried_over { " (carried)" } else { "" },
+            ]);
+        }
+        out.push_str(&table.render());
+        out.push_str(&wrap("The upper bound at each budget is the rate-capped convex relaxation over all candidate pairs (work and pathway-count limits dropped); (carried) marks a design kept from a tighter budget because the search found nothing better.", "  ", 78));
+        out.push('\n');
+        out
+    }
+
+    pub fn csv(&self) -> String {
+        let mut out = format!(
+            "{},best_power,fraction_of_headroom,relaxation,evaluated,carried_over,pathways\n",
+            self.over.replace('-', "_")
+        );
+        let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
+        for pt in &self.points {
+            let names: Vec<String> = pt
+                .pathways
+                .iter()
+                .map(|w| format!("{}/{}", w.from, w.to))
+                .collect();
+            out.push_str(&format!(
+                "{},{},{},{},{},{},{}\n",
+                pt.value,
+                opt(pt.best_power),
+                opt(pt.fraction_of_headroom),
+                opt(pt.relaxation),
+                pt.evaluated,
+                pt.carried_over,
+                super::csv_field(&names.join(" "))
+            ));
+        }
+        out
+    }
+
+    /// Power against the budget: best design, the relaxation, the universal bound and the
+    /// baseline as reference lines; log budget axis for rates.
+    pub fn svg(&self) -> String {
+        use super::svg::{Chart, Series};
+        let xs: Vec<f64> = self.points.iter().map(|p| p.value).collect();
+        let (lo, hi) = (xs[0], xs[xs.len() - 1]);
+        let line = |name: &str, y: f64| Series {
+            name: name.into(),
+            points: vec![(lo, y), (hi, y)],
+            dashed: true,
+            markers: false,
+            joined: true,
+        };
+        let log_x = hi / lo >= 100.0;
+        Chart {
+            title: format!("Best power within the budget: {}", self.title),
+            x_label: format!("{} {}", self.over, self.value_unit()),
+            y_label: format!("power ({})", self.units.power),
+            log_x,
+            log_y: false,
+            series: vec![
+                Series {
+                    name: "best design found".into(),
+                    points: self
+                        .points
+                        .iter()
+                        .filter_map(|p| p.best_power.map(|y| (p.value, y)))
+                        .collect(),
+                    dashed: false,
+                    markers: true,
+                    joined: true,
+                },
+                Series {
+                    name: "upper bound at budget".into(),
+                    points: self
+                        .points
+                        .iter()
+                        .filter_map(|p| p.relaxation.map(|y| (p.value, y)))
+                        .collect(),
+                    dashed: true,
+                    markers: false,
+                    joined: true,
+                },
+                line("universal bound", self.bound.power),
+                line("baseline", self.baseline_power),
+            ],
+        }
+        .render()
+    }
+}

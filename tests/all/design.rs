@@ -1,0 +1,481 @@
+//! The design search (`design`, `merge`, `sweep`) against independent brute force: every
+//! scored design is re-scored here by a steady-state solve written with nalgebra (not the
+//! tool's solver), and the best rates of each pathway set are searched by a grid plus a compass
+//! (pattern) search, a derivative-free method (Kolda, Lewis & Torczon, SIAM Review 45, 2003)
+//! that shares no code with the tool's L-BFGS and adjoint gradients.
+
+use crate::common::{close, load, root, run, scratch};
+use ergopath::model::{Model, Network};
+use nalgebra::{DMatrix, DVector};
+use serde_json::Value;
+
+/// Total harvesting power of `net` plus added pathways `(a, b, q+, q-)`, each storing
+/// `E_a - E_b - ln(q+/q-)` kT per forward jump (theory note, section 2), from a dense LU solve
+/// of `L p = 0` with the last equation replaced by `sum p = 1`.
+fn power(net: &Network, added: &[(usize, usize, f64, f64)]) -> f64 {
+    let n = net.len();
+    let mut l = DMatrix::<f64>::zeros(n, n);
+    let mut jumps: Vec<(usize, usize, f64, f64, f64)> = net
+        .channels
+        .iter()
+        .map(|c| (c.from, c.to, c.forward, c.backward, c.work))
+        .collect();
+    for &(a, b, f, g) in added {
+        jumps.push((a, b, f, g, net.energies[a] - net.energies[b] - (f / g).ln()));
+    }
+    for &(a, b, f, g, _) in &jumps {
+        l[(b, a)] += f;
+        l[(a, a)] -= f;
+        l[(a, b)] += g;
+        l[(b, b)] -= g;
+    }
+    for j in 0..n {
+        l[(n - 1, j)] = 1.0;
+    }
+    let mut rhs = DVector::<f64>::zeros(n);
+    rhs[n - 1] = 1.0;
+    let p = l.lu().solve(&rhs).expect("irreducible");
+    jumps
+        .iter()
+        .map(|&(a, b, f, g, w)| w * (f * p[a] - g * p[b]))
+        .sum()
+}
+
+/// Limits of the brute force: per-direction cap, total rate, |work| (kT).
+#[derive(Clone, Copy)]
+struct Limits {
+    cap: f64,
+    total: Option<f64>,
+    work: Option<f64>,
+}
+
+impl Limits {
+    fn allows(&self, net: &Network, added: &[(usize, usize, f64, f64)]) -> bool {
+        let total: f64 = added.iter().map(|p| p.2 + p.3).sum();
+        added.iter().all(|&(a, b, f, g)| {
+            let w = net.energies[a] - net.energies[b] - (f / g).ln();
+            f <= self.cap && g <= self.cap && self.work.is_none_or(|lim| w.abs() <= lim)
+        }) && self.total.is_none_or(|t| total <= t)
+    }
+}
+
+/// Rates of pathways on `pairs` from a point of the unit cube, two coordinates per pathway.
+/// With only a cap: log10(rate / cap) in [-6, 0] for each direction. With a work limit `W` and
+/// a total rate `T`: the work per jump in [-W, W] and the pathway's traffic `q+ + q-` in
+/// [0, T], so that the limits are box constraints (the total is still checked).
+fn rates_at(
+    net: &Network,
+    pairs: &[(usize, usize)],
+    limits: Limits,
+    x: &[f64],
+) -> Vec<(usize, usize, f64, f64)> {
+    pairs
+        .iter()
+        .enumerate()
+        .map(|(e, &(a, b))| match (limits.work, limits.total) {
+            (Some(w), Some(t)) => {
+                let work = w * (2.0 * x[2 * e] - 1.0);
+                let ratio = (net.energies[a] - net.energies[b] - work).exp(); // q+/q-
+                let traffic = t * x[2 * e + 1];
+                (
+                    a,
+                    b,
+                    traffic * ratio / (1.0 + ratio),
+                    traffic / (1.0 + ratio),
+                )
+            }
+            _ => {
+                let rate = |u: f64| limits.cap * 10f64.powf(-6.0 * (1.0 - u));
+                (a, b, rate(x[2 * e]), rate(x[2 * e + 1]))
+            }
+        })
+        .collect()
+}
+
+/// Best power over the rates of pathways on `pairs`: a grid over the unit cube of
+/// [`rates_at`], then a compass search (step halving to 1e-7) from the best few grid points.
+/// Infeasible points score -inf.
+fn brute_force(net: &Network, pairs: &[(usize, usize)], limits: Limits, grid: usize) -> f64 {
+    let dims = 2 * pairs.len();
+    let score = |x: &[f64]| -> f64 {
+        if x.iter().any(|v| *v > 1.0 || *v < 0.0) {
+            return f64::NEG_INFINITY;
+        }
+        let added = rates_at(net, pairs, limits, x);
+        if added.iter().all(|p| p.2 > 0.0 && p.3 > 0.0) && limits.allows(net, &added) {
+            power(net, &added)
+        } else {
+            f64::NEG_INFINITY
+        }
+    };
+    let mut seeds: Vec<(f64, Vec<f64>)> = Vec::new();
+    let points = (grid + 1).pow(dims as u32);
+    for k in 0..points {
+        let mut rest = k;
+        let x: Vec<f64> = (0..dims)
+            .map(|_| {
+                let i = rest % (grid + 1);
+                rest /= grid + 1;
+                i as f64 / grid as f64
+            })
+            .collect();
+        seeds.push((score(&x), x));
+    }
+    seeds.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let mut best = f64::NEG_INFINITY;
+    for (mut value, mut x) in seeds.into_iter().take(6) {
+        let mut step = 1.0 / grid as f64;
+        while step > 1e-7 {
+            let mut moved = false;
+            for d in 0..dims {
+                for sign in [1.0, -1.0] {
+                    let mut y = x.clone();
+                    y[d] += sign * step;
+                    let v = score(&y);
+                    if v > value {
+                        (value, x, moved) = (v, y, true);
+                    }
+                }
+            }
+            if !moved {
+                step /= 2.0;
+            }
+        }
+        best = best.max(value);
+    }
+    best
+}
+
+fn json(args: &[&str]) -> Value {
+    let out = run(args);
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// `(pairs, q+, q- per pathway, achieved power in kT)` of each ranked design.
+type Ranked = Vec<(Vec<(usize, usize)>, Vec<(f64, f64)>, f64)>;
+
+fn ranked(model: &Model, report: &Value) -> Ranked {
+    let kt = |x: f64| model.units.to_kt(x);
+    report["designs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|d| {
+            let pathways = d["pathways"].as_array().unwrap();
+            let pairs = pathways
+                .iter()
+                .map(|p| {
+                    let a = model.state_index(p["from"].as_str().unwrap()).unwrap();
+                    let b = model.state_index(p["to"].as_str().unwrap()).unwrap();
+                    (a, b)
+                })
+                .collect();
+            let rates = pathways
+                .iter()
+                .map(|p| {
+                    (
+                        p["forward"].as_f64().unwrap(),
+                        p["backward"].as_f64().unwrap(),
+                    )
+                })
+                .collect();
+            (pairs, rates, kt(d["achieved_power"].as_f64().unwrap()))
+        })
+        .collect()
+}
+
+/// Every ranked design is re-scored independently, respects the budget, and its stated power
+/// is the power of its rates; then each set's power equals the brute-force best for that set.
+fn check_against_brute_force(args: &[&str], limits: Limits, grid: usize, headroom_share: f64) {
+    let model = load("problems/walker.toml");
+    let net = &model.network;
+    let report = json(args);
+    let baseline = model
+        .units
+        .to_kt(report["baseline_power"].as_f64().unwrap());
+    let headroom = model
+        .units
+        .to_kt(report["bound"]["headroom"].as_f64().unwrap());
+    let designs = ranked(&model, &report);
+    assert!(!designs.is_empty());
+    // The keys of model-format.md ("design search"), with their documented meanings.
+    assert!(report["budget"]["max_pathways"].as_u64().is_some());
+    assert!(report["evaluated"].as_u64().unwrap() >= designs.len() as u64);
+    for (i, d) in report["designs"].as_array().unwrap().iter().enumerate() {
+        assert_eq!(d["rank"].as_u64(), Some(i as u64 + 1));
+        let share = d["fraction_of_headroom"].as_f64().unwrap();
+        let gain = model.units.to_kt(d["achieved_power"].as_f64().unwrap()) - baseline;
+        assert!(close(share, gain / headroom, 1e-9, 1e-12));
+    }
+    for (pairs, rates, achieved) in &designs {
+        let added: Vec<(usize, usize, f64, f64)> = pairs
+            .iter()
+            .zip(rates)
+            .map(|(&(a, b), &(f, g))| (a, b, f, g))
+            .collect();
+        let limits_with_roundoff = Limits {
+            cap: limits.cap * (1.0 + 1e-9),
+            total: limits.total.map(|t| t * (1.0 + 1e-9)),
+            work: limits.work.map(|w| w * (1.0 + 1e-9)),
+        };
+        assert!(
+            limits_with_roundoff.allows(net, &added),
+            "{args:?}: {pairs:?} {rates:?} breaks the budget"
+        );
+        let independent = power(net, &added);
+        assert!(
+            close(*achieved, independent, 1e-9, 1e-12 * headroom),
+            "{pairs:?}: reported {achieved}, independent solve {independent}"
+        );
+        let brute = brute_force(net, pairs, limits, grid);
+        let gain = brute - baseline;
+        assert!(
+            *achieved >= brute - headroom_share * headroom,
+            "{pairs:?}: search {achieved} below brute force {brute} (gain {gain})"
+        );
+        assert!(
+            *achieved <= brute + headroom_share * headroom,
+            "{pairs:?}: search {achieved} above brute force {brute}"
+        );
+    }
+    // The ranking is in order of power.
+    for w in designs.windows(2) {
+        assert!(w[0].2 >= w[1].2);
+    }
+}
+
+#[test]
+fn one_pathway_search_equals_brute_force_under_a_cap() {
+    // k = 1 on the 4-state walker: all 6 single pathways ranked, each equal to a 2-D brute force.
+    check_against_brute_force(
+        &[
+            "design",
+            "problems/walker.toml",
+            "--max-pathways",
+            "1",
+            "--rate-cap",
+            "200",
+            "--top",
+            "6",
+            "--json",
+            "-q",
+        ],
+        Limits {
+            cap: 200.0,
+            total: None,
+            work: None,
+        },
+        300,
+        1e-5,
+    );
+}
+
+#[test]
+fn two_pathway_search_equals_brute_force_under_a_cap() {
+    // k = 2: all sets of one or two pathways that the search ranks (sets whose optimum idles a
+    // pathway are left out as copies of smaller ones), each against a 4-D brute force.
+    check_against_brute_force(
+        &[
+            "design",
+            "problems/walker.toml",
+            "--max-pathways",
+            "2",
+            "--rate-cap",
+            "200",
+            "--top",
+            "21",
+            "--json",
+            "-q",
+        ],
+        Limits {
+            cap: 200.0,
+            total: None,
+            work: None,
+        },
+        12,
+        1e-4,
+    );
+}
+
+#[test]
+fn search_under_total_rate_and_work_limits_equals_brute_force() {
+    // Non-convex budget (local optimisation from several starts), k = 1 and k = 2. Work limit
+    // 12 pN nm (2.915 kT at 298.15 K); the model's own cap of 1000 /s cannot bind under a total
+    // of 300 /s, so the brute force's box coordinates hold every limit.
+    let work_kt = load("problems/walker.toml").units.to_kt(12.0);
+    for (k, top, grid, share) in [("1", "6", 300, 1e-5), ("2", "8", 20, 1e-4)] {
+        check_against_brute_force(
+            &[
+                "design",
+                "problems/walker.toml",
+                "--max-pathways",
+                k,
+                "--total-rate",
+                "300",
+                "--work-limit",
+                "12",
+                "--top",
+                top,
+                "--json",
+                "-q",
+            ],
+            Limits {
+                cap: 1000.0,
+                total: Some(300.0),
+                work: Some(work_kt),
+            },
+            grid,
+            share,
+        );
+    }
+}
+
+#[test]
+fn shards_merged_equal_one_run_byte_for_byte() {
+    let dir = scratch("shards");
+    let model = root().join("problems/ring6.toml");
+    let model = model.to_str().unwrap();
+    let common = [
+        "--max-pathways",
+        "3",
+        "--rate-cap",
+        "10",
+        "--top",
+        "8",
+        "-q",
+    ];
+    let single = run(&[&["design", model, "--json"][..], &common].concat());
+    assert!(single.status.success());
+    let mut parts = Vec::new();
+    for i in 0..3 {
+        let shard = format!("{i}/3");
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
+            .args([&["design", model, "--shard", &shard, "--save"][..], &common].concat())
+            .current_dir(&dir)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        parts.push(dir.join(format!("results/ring6/design-part-{i}-of-3.json")));
+    }
+    let part_args: Vec<&str> = parts.iter().map(|p| p.to_str().unwrap()).collect();
+    let merged = run(&[&["merge"][..], &part_args, &["--json"]].concat());
+    assert!(
+        merged.status.success(),
+        "{}",
+        String::from_utf8_lossy(&merged.stderr)
+    );
+    assert_eq!(
+        String::from_utf8_lossy(&single.stdout),
+        String::from_utf8_lossy(&merged.stdout)
+    );
+    // Missing or repeated shards are refused with a clear message and exit status 2.
+    for bad in [
+        &part_args[..2],
+        &[part_args[0], part_args[0], part_args[1]][..],
+    ] {
+        let out = run(&[&["merge"][..], bad].concat());
+        assert_eq!(out.status.code(), Some(2));
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains("shard"), "{err}");
+    }
+}
+
+#[test]
+fn sweep_never_falls_stays_under_its_bounds_and_tends_to_the_universal_bound() {
+    // Three pathways are enough for the fast tree design on 4 states, so at a large cap the
+    // best design must come within 1% of the universal bound (theory note, sections 4 and 5).
+    let report = json(&[
+        "sweep",
+        "problems/walker.toml",
+        "--over",
+        "rate-cap=1..1e6",
+        "--points",
+        "7",
+        "--max-pathways",
+        "3",
+        "--json",
+        "-q",
+    ]);
+    let bound = report["bound"]["power"].as_f64().unwrap();
+    let points = report["points"].as_array().unwrap();
+    assert_eq!(points.len(), 7);
+    let mut last = f64::NEG_INFINITY;
+    let mut relaxed = 0;
+    for p in points {
+        let best = p["best_power"].as_f64().unwrap();
+        assert!(best >= last, "best power fell: {last} -> {best}");
+        assert!(
+            best <= bound,
+            "best {best} above the universal bound {bound}"
+        );
+        // The relaxation is reported only when the conic solver reached full accuracy.
+        if let Some(relaxation) = p["relaxation"].as_f64() {
+            assert!(
+                best <= relaxation,
+                "best {best} above its relaxation {relaxation}"
+            );
+            assert!(
+                relaxation <= bound * (1.0 + 1e-4),
+                "relaxation {relaxation} above the bound {bound}"
+            );
+            relaxed += 1;
+        }
+        last = best;
+    }
+    assert!(
+        relaxed >= 4,
+        "only {relaxed} relaxations were solved to full accuracy"
+    );
+    let share = points[6]["fraction_of_headroom"].as_f64().unwrap();
+    assert!(
+        share > 0.99,
+        "at cap 1e6 the best design reaches only {share} of the headroom"
+    );
+}
+
+#[test]
+fn design_flags_are_checked() {
+    let cases: [(&[&str], &str); 7] = [
+        (&["design", "tests/fixtures/models/random1.toml"], "rate budget"),
+        (
+            &["design", "problems/walker.toml", "--max-pathways", "0"],
+            "max-pathways",
+        ),
+        (
+            &["design", "problems/walker.toml", "--work-limit", "-1"],
+            "work-limit",
+        ),
+        (
+            &["design", "problems/walker.toml", "--total-rate", "0"],
+            "total-rate",
+        ),
+        (
+            &["design", "problems/walker.toml", "--pairs", "empty/nowhere"],
+            "nowhere",
+        ),
+        (
+            &["sweep", "problems/walker.toml", "--over", "speed=1..10"],
+            "rate-cap",
+        ),
+        (
+            &["design", "problems/walker.toml", "--shard", "3/3"],
+            "shard",
+        ),
+    ];
+    for (args, phrase) in cases {
+        let out = run(args);
+        assert_eq!(out.status.code(), Some(2), "{args:?}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(phrase), "{args:?}: {err}");
+        assert!(out.stdout.is_empty());
+    }
+}

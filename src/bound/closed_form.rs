@@ -1,10 +1,34 @@
-//! Closed-form estimates of the bound (theory note, section 6).
+//! Closed-form estimates of the bound (theory note, section 6) and the regime indicator that
+//! says which of them to trust.
 //!
 //! Near equilibrium, `Phi(pi + eps) ~ W_base + v . eps - (1/2) eps' H eps` with `v` the
 //! gradient of the linear benefit `B` at the baseline steady state `pi` and
 //! `H = -(D^-1 R + R' D^-1)`, `D = diag(pi)` (positive semidefinite, null vector `pi`).
 //! Maximising over `sum eps = 0` gives `H eps = v - c 1`, `1' eps = 0`, and the headroom
-//! `v . eps / 2` (kT units): quadratic in the drive. No I/O.
+//! `v . eps / 2` (kT units): quadratic in the drive.
+//!
+//! Strong drive. With `phi = ln p - ln peq`, `Phi(p) = sum_s u_s p_s + sum_{s->t} r_st p_s
+//! ln(p_t / p_s)`, where `u_s = sum_{t} r_st (w_st + F_t - F_s)` sums over the jumps leaving `s`
+//! (rate, work of the jump, energy change). When the energies are large the linear part
+//! dominates and `p*` sits at the corner `m = argmax u`. Near it write `p_m = 1 - sum eps`,
+//! `p_t = eps_t`. The only terms of order `r ln(1/eps)` are those of the jumps leaving `m`:
+//! `r_mt ln eps_t`. Stationarity in `eps_t` gives `-(u_m - u_t) + r_mt / eps_t = 0`, so
+//! `eps_t = r_mt / (u_m - u_t)` for every state `t` that `m` jumps to (the others are smaller by
+//! a further factor `r / du`), and substituting back,
+//!
+//! `Phi* = u_m - sum_t r_mt [1 + ln((u_m - u_t) / r_mt)] + O(r^2 ln(du / r) / du)`.
+//!
+//! The bracket is the first correction to the corner limit `u_m`: of order (escape rate of `m`)
+//! times ln(drive / kT), as the theory note anticipates; the neglected terms come from the
+//! jumps back into `m` and among the other states, each carrying a factor `eps`. So the relative
+//! error of the corrected form falls like `ln(lambda) / lambda^2` when all energies scale with
+//! `lambda` (and that of the bare corner limit only like `ln(lambda) / lambda`).
+//!
+//! Regime indicator `chi = (u_m - W_base) / (kT * r_m)`, `r_m` the escape rate of the best
+//! state: the work the best state could deliver per escape from it, in kT. Validated on
+//! sweeps (tests and `ergopath regimes`): the near-equilibrium form is within 10% where
+//! `chi < NEAR_EQUILIBRIUM_BELOW`, the strong-drive form within 10% where
+//! `chi > STRONG_DRIVE_ABOVE`. No I/O.
 
 use super::objective::Objective;
 use crate::linalg::SparseLu;
@@ -51,6 +75,102 @@ pub fn near_equilibrium(network: &Network, pi: &[f64]) -> Result<NearEquilibrium
     let shift: Vec<f64> = (0..n).map(|k| rhs[(k, 0)]).collect();
     let headroom = 0.5 * v.iter().zip(&shift).map(|(a, b)| a * b).sum::<f64>();
     Ok(NearEquilibrium { headroom, shift })
+}
+
+/// Below this indicator the near-equilibrium (quadratic) form is the one to use.
+pub const NEAR_EQUILIBRIUM_BELOW: f64 = 1.0;
+
+/// Above this indicator the strong-drive form is the one to use.
+pub const STRONG_DRIVE_ABOVE: f64 = 10.0;
+
+/// The strong-drive estimate.
+#[derive(Debug, Clone)]
+pub struct StrongDrive {
+    /// Estimated headroom `Phi* - W_base` with the first correction (kT per time unit).
+    pub headroom: f64,
+    /// The corner limit `max_m u_m - W_base` alone.
+    pub corner: f64,
+    /// The best state `m`.
+    pub state: usize,
+    /// Estimated `p*_t = r_mt / (u_m - u_t)` of the states that `m` jumps to.
+    pub neighbours: Vec<(usize, f64)>,
+}
+
+/// Work per unit probability `u_s = sum over jumps s -> t of r (w + F_t - F_s)` (kT per time
+/// unit): the rate at which state `s` would deliver work if it could be held occupied.
+pub fn corner_values(objective: &Objective) -> Vec<f64> {
+    let mut u = objective.work_gradient.clone();
+    for jump in &objective.jumps {
+        // ln peq_s - ln peq_t = F_t - F_s
+        let drop = objective.log_equilibrium[jump.source] - objective.log_equilibrium[jump.target];
+        u[jump.source] += jump.rate * drop;
+    }
+    u
+}
+
+/// Index of the largest `u` (first of equals).
+fn best_state(u: &[f64]) -> usize {
+    (0..u.len()).fold(0, |best, s| if u[s] > u[best] { s } else { best })
+}
+
+/// The strong-drive estimate of the headroom; `None` when the best state is not unique (a
+/// tie makes the correction infinite: the corner is not strongly preferred).
+pub fn strong_drive(network: &Network, baseline_power: f64) -> Option<StrongDrive> {
+    let objective = Objective::new(network);
+    let u = corner_values(&objective);
+    let m = best_state(&u);
+    let mut correction = 0.0;
+    let mut neighbours = Vec::new();
+    for jump in objective.jumps.iter().filter(|j| j.source == m) {
+        let gap = u[m] - u[jump.target];
+        if !(gap > 0.0) {
+            return None;
+        }
+        correction += jump.rate * (1.0 + (gap / jump.rate).ln());
+        neighbours.push((jump.target, jump.rate / gap));
+    }
+    Some(StrongDrive {
+        headroom: u[m] - correction - baseline_power,
+        corner: u[m] - baseline_power,
+        state: m,
+        neighbours,
+    })
+}
+
+/// Which closed form describes the bound.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Regime {
+    NearEquilibrium,
+    Crossover,
+    StrongDrive,
+}
+
+impl Regime {
+    pub fn name(self) -> &'static str {
+        match self {
+            Regime::NearEquilibrium => "near equilibrium",
+            Regime::Crossover => "crossover",
+            Regime::StrongDrive => "strong drive",
+        }
+    }
+
+    pub fn of(indicator: f64) -> Self {
+        if indicator < NEAR_EQUILIBRIUM_BELOW {
+            Regime::NearEquilibrium
+        } else if indicator > STRONG_DRIVE_ABOVE {
+            Regime::StrongDrive
+        } else {
+            Regime::Crossover
+        }
+    }
+}
+
+/// The regime indicator `chi = (max_m u_m - W_base) / (kT * escape rate of m)`, dimensionless.
+pub fn indicator(network: &Network, baseline_power: f64) -> f64 {
+    let objective = Objective::new(network);
+    let u = corner_values(&objective);
+    let m = best_state(&u);
+    (u[m] - baseline_power) / objective.exit[m]
 }
 
 #[cfg(test)]

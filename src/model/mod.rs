@@ -118,6 +118,42 @@ impl Network {
         components(self.len(), self.channels.iter().map(|c| (c.from, c.to)))
     }
 
+    /// The network with its energy labels multiplied: every work label by `work`, every drive
+    /// by `drive`, every state energy by `energies`. Each channel keeps its forward rate and
+    /// takes its backward rate from LDB, as a model file does when it gives the drive. `None`
+    /// if a rate leaves the floating-point range.
+    pub fn scaled(&self, work: f64, drive: f64, energies: f64) -> Option<Network> {
+        self.relabelled(energies, |c| (c.work * work, c.drive * drive))
+    }
+
+    /// The network with every work label multiplied by `factor` and each drive raised by the
+    /// same amount, `d + (factor - 1) w`: the store is charged at a higher potential and the
+    /// environment pays for it, so every affinity and every rate stay as they are.
+    pub fn with_stored_energy_scaled(&self, factor: f64) -> Network {
+        self.relabelled(1.0, |c| (c.work * factor, c.drive + (factor - 1.0) * c.work))
+            .expect("rates are unchanged")
+    }
+
+    /// Relabels every channel (`(work, drive)` from `labels`), multiplies the state energies by
+    /// `energies`, keeps forward rates and takes backward rates from LDB.
+    fn relabelled(&self, energies: f64, labels: impl Fn(&Channel) -> (f64, f64)) -> Option<Network> {
+        let states: Vec<f64> = self.energies.iter().map(|e| e * energies).collect();
+        let channels = self
+            .channels
+            .iter()
+            .map(|c| {
+                let (w, d) = labels(c);
+                let channel = Channel::balanced(&states, c.from, c.to, c.forward, w, d);
+                let usable = |r: f64| r.is_finite() && r >= f64::MIN_POSITIVE;
+                usable(channel.backward).then_some(channel)
+            })
+            .collect::<Option<Vec<_>>>()?;
+        Some(Network {
+            energies: states,
+            channels,
+        })
+    }
+
     /// The network with extra channels appended.
     pub fn with_channels(&self, extra: &[Channel]) -> Network {
         let mut net = self.clone();

@@ -267,10 +267,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         &attaining.speeds,
         &attaining.curve,
         capped.as_ref().map(|(c, d)| (*c, d)),
-        // The estimate is informative only; a failed solve just leaves it out.
-        bound::closed_form::near_equilibrium(net, &solved.baseline)
-            .ok()
-            .map(|e| e.headroom),
+        &bound::closed_form::assess(net, &solved.baseline, solved.baseline_power),
     );
     report.rate_capped_failure = capped_failure
         .map(|(rate_cap, reason)| crate::report::bound::CappedFailure { rate_cap, reason });

@@ -5,7 +5,7 @@
 use super::table::{num, percent, sci, wrap, Align, Table};
 use super::{named_distribution, StateProbability, UnitsJson};
 use crate::bound::design::VerifiedDesign;
-use crate::bound::Bound;
+use crate::bound::{closed_form, Bound};
 use crate::model::{Model, PairSelection};
 use serde::Serialize;
 
@@ -106,6 +106,7 @@ pub struct BoundReport {
     pub rate_capped_failure: Option<CappedFailure>,
     /// `(largest added rate, share of the headroom)` along the tree design.
     pub speed_curve: Vec<(f64, f64)>,
+    pub regime: RegimeJson,
     pub closed_forms: ClosedForms,
 }
 
@@ -113,8 +114,40 @@ pub struct BoundReport {
 #[derive(Debug, Clone, Serialize)]
 pub struct ClosedForms {
     pub near_equilibrium: Option<Estimate>,
-    /// The strong-drive form is not implemented yet.
+    /// Corner limit with its first correction.
     pub strong_drive: Option<Estimate>,
+}
+
+/// The regime verdict: `indicator` is chi (work per escape from the best state, in kT), `shift`
+/// the relative shift of the near-equilibrium optimum.
+#[derive(Debug, Clone, Serialize)]
+pub struct RegimeJson {
+    pub name: &'static str,
+    pub indicator: f64,
+    pub shift: Option<f64>,
+}
+
+impl RegimeJson {
+    pub fn of(forms: &closed_form::ClosedForms) -> Self {
+        Self {
+            name: forms.regime.name(),
+            indicator: forms.indicator,
+            shift: forms.shift,
+        }
+    }
+}
+
+impl ClosedForms {
+    /// The estimates in the model's units.
+    pub fn of(forms: &closed_form::ClosedForms, units: &crate::units::Units) -> Self {
+        let estimate = |h: f64| Estimate {
+            headroom: units.from_kt(h),
+        };
+        Self {
+            near_equilibrium: forms.near_equilibrium.as_ref().map(|e| estimate(e.headroom)),
+            strong_drive: forms.strong_drive.as_ref().map(|s| estimate(s.headroom)),
+        }
+    }
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -157,7 +190,7 @@ impl BoundReport {
         speeds: &[(f64, Option<f64>)],
         curve: &[(f64, f64)],
         capped: Option<(f64, &VerifiedDesign)>,
-        near_equilibrium: Option<f64>,
+        forms: &closed_form::ClosedForms,
     ) -> Self {
         let u = &model.units;
         Self {
@@ -178,12 +211,8 @@ impl BoundReport {
                 .map(|&(fraction, speed)| SpeedRow { fraction, speed })
                 .collect(),
             speed_curve: curve.to_vec(),
-            closed_forms: ClosedForms {
-                near_equilibrium: near_equilibrium.map(|h| Estimate {
-                    headroom: u.from_kt(h),
-                }),
-                strong_drive: None,
-            },
+            regime: RegimeJson::of(forms),
+            closed_forms: ClosedForms::of(forms, u),
             rate_capped_failure: None,
             rate_capped: capped.map(|(rate_cap, d)| CappedJson {
                 rate_cap,
@@ -207,7 +236,7 @@ impl BoundReport {
             num(self.bound.certified_upper),
             self.bound.relative_gap,
             num(self.bound.headroom),
-            self.near_equilibrium_line(),
+            self.closed_form_lines(),
             num(self.benefit),
             num(self.maintenance_cost),
             self.route
@@ -257,24 +286,30 @@ impl BoundReport {
 }
 
 impl BoundReport {
-    /// `  near equilibrium     X (error Y%)` when the estimate exists.
-    fn near_equilibrium_line(&self) -> String {
-        match &self.closed_forms.near_equilibrium {
-            None => String::new(),
-            Some(e) => {
-                let error = if self.bound.headroom != 0.0 {
-                    format!(
-                        "  (quadratic estimate, {} off)",
-                        percent(
-                            (e.headroom - self.bound.headroom).abs() / self.bound.headroom.abs()
-                        )
-                    )
-                } else {
-                    "  (quadratic estimate)".to_string()
-                };
-                format!("  near equilibrium     {}{error}\n", num(e.headroom))
-            }
+    /// The regime line and one line per closed-form estimate with its error.
+    fn closed_form_lines(&self) -> String {
+        let r = &self.regime;
+        let mut out = format!(
+            "  regime               {} (indicator {}, shift {})\n",
+            r.name,
+            num(r.indicator),
+            r.shift.map_or("-".into(), num)
+        );
+        let forms = [
+            ("near equilibrium", "quadratic form", &self.closed_forms.near_equilibrium),
+            ("strong drive", "corner limit, first correction", &self.closed_forms.strong_drive),
+        ];
+        for (name, what, estimate) in forms {
+            let Some(e) = estimate else { continue };
+            let error = if self.bound.headroom != 0.0 {
+                let off = (e.headroom - self.bound.headroom).abs() / self.bound.headroom.abs();
+                format!("  ({what}, {} off)", percent(off))
+            } else {
+                format!("  ({what})")
+            };
+            out.push_str(&format!("  {name:<20} {}{error}\n", num(e.headroom)));
         }
+        out
     }
 
     /// Share of the headroom against the largest added rate: the tree design's curve, the speed

@@ -140,6 +140,30 @@ enum Command {
         #[arg(long)]
         save: bool,
     },
+    /// Exact headroom beside the near-equilibrium and strong-drive closed forms as energy labels are scaled
+    #[command(
+        after_help = "Examples:\n  ergopath regimes problems/ring6.toml --scale stored --from 0.01 --to 1000 --points 11 --save\n  ergopath regimes problems/walker.toml --scale drive --from 0.1 --to 3\n\n`stored` multiplies every work label and raises each drive by the same amount, so no rate changes;\nwork, drive and energies (or a comma list) keep forward rates and take backward rates from LDB."
+    )]
+    Regimes {
+        /// Model file (TOML)
+        model: PathBuf,
+        /// Which labels to scale: work, drive, energies (or a comma list), or stored
+        #[arg(long)]
+        scale: String,
+        /// Smallest scale factor
+        #[arg(long, default_value_t = 0.01)]
+        from: f64,
+        /// Largest scale factor
+        #[arg(long, default_value_t = 1000.0)]
+        to: f64,
+        /// Number of (log-spaced) scale factors
+        #[arg(long, default_value_t = 11)]
+        points: usize,
+        #[command(flatten)]
+        format: FormatFlags,
+        #[command(flatten)]
+        save: SaveFlag,
+    },
     /// Time the solvers on seeded synthetic networks (banded and random-chord families)
     #[command(
         after_help = "Example:\n  ergopath bench --sizes 100,1000,100000 --bound-sizes 100,1000,10000 --runs 3"
@@ -327,6 +351,25 @@ fn main() -> ExitCode {
             out_dir: out.clone(),
             design: (*design_states > 0).then_some((*design_states, *design_k)),
         }),
+        Command::Regimes {
+            model,
+            scale,
+            from,
+            to,
+            points,
+            format,
+            save,
+        } => commands::regimes(
+            model,
+            &commands::RegimesRequest {
+                scale: scale.clone(),
+                from: *from,
+                to: *to,
+                points: *points,
+                format: format.format(),
+                save_root: save.root(),
+            },
+        ),
         Command::Design {
             model,
             pairs,

@@ -84,7 +84,7 @@ pub fn near_equilibrium(network: &Network, pi: &[f64]) -> Result<NearEquilibrium
 }
 
 /// Below this relative shift of the near-equilibrium optimum the quadratic form is the one to use.
-pub const NEAR_EQUILIBRIUM_SHIFT: f64 = 1.0;
+pub const NEAR_EQUILIBRIUM_SHIFT: f64 = 0.3;
 
 /// Above this indicator the strong-drive form is the one to use.
 pub const STRONG_DRIVE_ABOVE: f64 = 10.0;
@@ -129,7 +129,7 @@ pub fn strong_drive(network: &Network, baseline_power: f64) -> Option<StrongDriv
     let mut neighbours = Vec::new();
     for jump in objective.jumps.iter().filter(|j| j.source == m) {
         let gap = u[m] - u[jump.target];
-        if !(gap > 0.0) {
+        if gap.is_nan() || gap <= 0.0 {
             return None;
         }
         correction += jump.rate * (1.0 + (gap / jump.rate).ln());
@@ -205,7 +205,10 @@ pub struct ClosedForms {
 /// Evaluates both closed forms and the regime around the baseline steady state `pi` with
 /// power `baseline_power`. A failed near-equilibrium solve only leaves that form out.
 pub fn assess(network: &Network, pi: &[f64], baseline_power: f64) -> ClosedForms {
-    let near_equilibrium = near_equilibrium(network, pi).ok();
+    // A singular or overflowing quadratic solve leaves the form out rather than report NaN.
+    let near_equilibrium = near_equilibrium(network, pi)
+        .ok()
+        .filter(|e| e.headroom.is_finite() && e.shift.iter().all(|x| x.is_finite()));
     let shift = near_equilibrium.as_ref().map(|e| relative_shift(e, pi));
     let indicator = indicator(network, baseline_power);
     ClosedForms {

@@ -285,3 +285,110 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         rendered,
     )
 }
+
+/// Settings of `ergopath regimes`.
+#[derive(Debug, Clone, Default)]
+pub struct RegimesRequest {
+    /// `work`, `drive`, `energies` (comma-separated for several) or `stored`.
+    pub scale: String,
+    pub from: f64,
+    pub to: f64,
+    pub points: usize,
+    pub format: Format,
+    pub save_root: Option<std::path::PathBuf>,
+}
+
+/// Multipliers `(work, drive, energies)` for `scale`, or `None` for the stored-energy scaling.
+fn scaling_of(text: &str) -> Result<Option<[bool; 3]>, Error> {
+    if text.trim() == "stored" {
+        return Ok(None);
+    }
+    let mut which = [false; 3];
+    for part in text.split(',').map(str::trim) {
+        match part {
+            "work" => which[0] = true,
+            "drive" => which[1] = true,
+            "energies" => which[2] = true,
+            other => {
+                return Err(Error::Usage(format!(
+                    "--scale: '{other}' is not a label to scale; give work, drive, energies (or a comma list of them), or stored"
+                )))
+            }
+        }
+    }
+    Ok(Some(which))
+}
+
+/// `ergopath regimes`: exact headroom beside the closed forms along a scaling of the labels.
+pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
+    use crate::bound::{self, closed_form, BoundSettings};
+    use crate::report::regimes::{RegimePoint, RegimesReport};
+    let model = Model::load(path)?;
+    let which = scaling_of(&request.scale)?;
+    let (from, to, points) = (request.from, request.to, request.points);
+    if !(from > 0.0 && to > from && to.is_finite()) || points < 2 {
+        return Err(Error::Usage(format!(
+            "--from {from} --to {to} --points {points}: give 0 < FROM < TO and at least 2 points (the scales are log-spaced)"
+        )));
+    }
+    let u = &model.units;
+    let mut rows = Vec::with_capacity(points);
+    for i in 0..points {
+        let scale = from * (to / from).powf(i as f64 / (points - 1) as f64);
+        let net = match which {
+            None => Some(model.network.with_stored_energy_scaled(scale)),
+            Some([w, d, e]) => {
+                let f = |on: bool| if on { scale } else { 1.0 };
+                model.network.scaled(f(w), f(d), f(e))
+            }
+        };
+        let mut row = RegimePoint {
+            scale,
+            headroom: None,
+            failure: None,
+            indicator: None,
+            shift: None,
+            regime: None,
+            near_equilibrium: None,
+            strong_drive: None,
+        };
+        let Some(net) = net else {
+            row.failure = Some("a backward rate leaves the floating-point range".into());
+            rows.push(row);
+            continue;
+        };
+        match bound::solve(&net, &PairSelection::All, &BoundSettings::default()) {
+            Err(e) => row.failure = Some(e.to_string()),
+            Ok(b) => {
+                let forms = closed_form::assess(&net, &b.baseline, b.baseline_power);
+                row.headroom = Some(u.from_kt(b.headroom()));
+                row.indicator = Some(forms.indicator);
+                row.shift = forms.shift;
+                row.regime = Some(forms.regime.name());
+                row.near_equilibrium = forms.near_equilibrium.map(|e| u.from_kt(e.headroom));
+                row.strong_drive = forms.strong_drive.map(|s| u.from_kt(s.headroom));
+            }
+        }
+        rows.push(row);
+    }
+    let report = RegimesReport {
+        title: model.title.clone(),
+        units: crate::report::UnitsJson::of(&model),
+        scaled: request.scale.trim().to_string(),
+        points: rows,
+    };
+    let rendered = Rendered {
+        text: report.text(),
+        json: to_json(&report)?,
+        csv: Some(report.csv()),
+        svg: Some(report.svg()),
+    };
+    let name = format!("regimes-{}", report.scaled.replace(',', "-"));
+    emit(
+        &model,
+        &name,
+        request.format,
+        request.save_root.as_deref(),
+        rendered,
+    )
+}

@@ -130,13 +130,19 @@ impl Network {
     /// same amount, `d + (factor - 1) w`: the store is charged at a higher potential and the
     /// environment pays for it, so every affinity and every rate stay as they are.
     pub fn with_stored_energy_scaled(&self, factor: f64) -> Network {
-        self.relabelled(1.0, |c| (c.work * factor, c.drive + (factor - 1.0) * c.work))
-            .expect("rates are unchanged")
+        self.relabelled(1.0, |c| {
+            (c.work * factor, c.drive + (factor - 1.0) * c.work)
+        })
+        .expect("rates are unchanged")
     }
 
     /// Relabels every channel (`(work, drive)` from `labels`), multiplies the state energies by
     /// `energies`, keeps forward rates and takes backward rates from LDB.
-    fn relabelled(&self, energies: f64, labels: impl Fn(&Channel) -> (f64, f64)) -> Option<Network> {
+    fn relabelled(
+        &self,
+        energies: f64,
+        labels: impl Fn(&Channel) -> (f64, f64),
+    ) -> Option<Network> {
         let states: Vec<f64> = self.energies.iter().map(|e| e * energies).collect();
         let channels = self
             .channels

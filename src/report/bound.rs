@@ -144,7 +144,10 @@ impl ClosedForms {
             headroom: units.from_kt(h),
         };
         Self {
-            near_equilibrium: forms.near_equilibrium.as_ref().map(|e| estimate(e.headroom)),
+            near_equilibrium: forms
+                .near_equilibrium
+                .as_ref()
+                .map(|e| estimate(e.headroom)),
             strong_drive: forms.strong_drive.as_ref().map(|s| estimate(s.headroom)),
         }
     }
@@ -296,8 +299,16 @@ impl BoundReport {
             r.shift.map_or("-".into(), num)
         );
         let forms = [
-            ("near equilibrium", "quadratic form", &self.closed_forms.near_equilibrium),
-            ("strong drive", "corner limit, first correction", &self.closed_forms.strong_drive),
+            (
+                "near equilibrium",
+                "quadratic form",
+                &self.closed_forms.near_equilibrium,
+            ),
+            (
+                "strong drive",
+                "corner limit, first correction",
+                &self.closed_forms.strong_drive,
+            ),
         ];
         for (name, what, estimate) in forms {
             let Some(e) = estimate else { continue };

@@ -445,7 +445,10 @@ fn sweep_never_falls_stays_under_its_bounds_and_tends_to_the_universal_bound() {
 #[test]
 fn design_flags_are_checked() {
     let cases: [(&[&str], &str); 7] = [
-        (&["design", "tests/fixtures/models/random1.toml"], "rate budget"),
+        (
+            &["design", "tests/fixtures/models/random1.toml"],
+            "rate budget",
+        ),
         (
             &["design", "problems/walker.toml", "--max-pathways", "0"],
             "max-pathways",

@@ -6,4 +6,5 @@ mod design;
 mod errors;
 mod published;
 mod reference;
+mod regimes;
 mod steady_numerics;

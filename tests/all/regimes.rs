@@ -1,0 +1,178 @@
+//! Closed forms and the regime verdict (theory note, section 6) against the exact bound along
+//! sweeps: the strong-drive form's convergence, and the verdict's promise that the form it
+//! names is accurate.
+
+use crate::common::{load, run};
+use ergopath::bound::{self, closed_form, BoundSettings};
+use ergopath::model::{Network, PairSelection};
+
+/// `(scale, exact headroom, closed forms)` along log-spaced scales; uncertified points skipped.
+fn sweep(
+    net: &Network,
+    scales: &[f64],
+    scaled: impl Fn(&Network, f64) -> Option<Network>,
+) -> Vec<(f64, f64, closed_form::ClosedForms)> {
+    scales
+        .iter()
+        .filter_map(|&s| {
+            let n = scaled(net, s)?;
+            let b = bound::solve(&n, &PairSelection::All, &BoundSettings::default()).ok()?;
+            let forms = closed_form::assess(&n, &b.baseline, b.baseline_power);
+            Some((s, b.headroom(), forms))
+        })
+        .collect()
+}
+
+fn log_scales(from: f64, to: f64, points: usize) -> Vec<f64> {
+    (0..points)
+        .map(|i| from * (to / from).powf(i as f64 / (points - 1) as f64))
+        .collect()
+}
+
+const MODELS: [&str; 9] = [
+    "problems/walker.toml",
+    "problems/photoswitch.toml",
+    "problems/ring6.toml",
+    "tests/fixtures/models/random1.toml",
+    "tests/fixtures/models/random2.toml",
+    "tests/fixtures/models/random3.toml",
+    "tests/fixtures/models/random4.toml",
+    "tests/fixtures/models/random5.toml",
+    "tests/fixtures/models/random6.toml",
+];
+
+/// The corner limit's first correction (derived in `bound::closed_form`) makes the error fall
+/// like ln(lambda)/lambda^2 when the stored energy per jump grows with lambda at fixed rates:
+/// on the ring of the theory note and on every model, the error falls at each step from 30x to
+/// 1000x and is under 1% at 1000x (a few hundred kT per jump on the ring: ring6 stores 1 kT).
+#[test]
+fn strong_drive_form_converges_as_the_stored_energy_grows() {
+    let scales = [30.0, 100.0, 300.0, 1000.0];
+    for path in MODELS {
+        let model = load(path);
+        let points = sweep(&model.network, &scales, |n, s| {
+            Some(n.with_stored_energy_scaled(s))
+        });
+        assert_eq!(
+            points.len(),
+            scales.len(),
+            "{path}: a point was not certified"
+        );
+        let errors: Vec<f64> = points
+            .iter()
+            .map(|(_, exact, f)| {
+                ((f.strong_drive.as_ref().unwrap().headroom - exact) / exact).abs()
+            })
+            .collect();
+        for w in errors.windows(2) {
+            assert!(w[1] < w[0], "{path}: error rose {errors:?}");
+        }
+        assert!(errors[3] < 0.01, "{path}: {errors:?}");
+    }
+}
+
+/// The verdict's promise, on 9 models x 2 scalings x 11 scales: where it says strong drive the
+/// strong-drive form is within 10% of the exact headroom, where it says near equilibrium the
+/// quadratic form is.
+#[test]
+fn regime_verdict_names_an_accurate_closed_form() {
+    let scales = log_scales(0.01, 1000.0, 11);
+    let (mut strong, mut near) = (0, 0);
+    for path in MODELS {
+        let model = load(path);
+        let stored = sweep(&model.network, &scales, |n, s| {
+            Some(n.with_stored_energy_scaled(s))
+        });
+        let drive = sweep(&model.network, &scales, |n, s| n.scaled(1.0, s, 1.0));
+        for (s, exact, f) in stored.iter().chain(&drive) {
+            let error = |estimate: f64| ((estimate - exact) / exact).abs();
+            match f.regime {
+                closed_form::Regime::StrongDrive => {
+                    let e = error(f.strong_drive.as_ref().unwrap().headroom);
+                    assert!(
+                        e < 0.1,
+                        "{path} at {s}: strong drive (chi {}) but the form is {e} off",
+                        f.indicator
+                    );
+                    strong += 1;
+                }
+                closed_form::Regime::NearEquilibrium => {
+                    let e = error(f.near_equilibrium.as_ref().unwrap().headroom);
+                    assert!(
+                        e < 0.1,
+                        "{path} at {s}: near equilibrium (shift {:?}) but the form is {e} off",
+                        f.shift
+                    );
+                    near += 1;
+                }
+                closed_form::Regime::Crossover => {}
+            }
+        }
+    }
+    assert!(
+        strong >= 30 && near >= 15,
+        "strong {strong}, near {near}: the sweeps must exercise both"
+    );
+}
+
+#[test]
+fn bound_json_carries_the_regime_and_both_closed_forms() {
+    let out = run(&["bound", "problems/photoswitch.toml", "--json"]);
+    assert!(out.status.success());
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["regime"]["name"], "strong drive");
+    assert!(v["regime"]["indicator"].as_f64().unwrap() > closed_form::STRONG_DRIVE_ABOVE);
+    let exact = v["bound"]["headroom"].as_f64().unwrap();
+    let strong = v["closed_forms"]["strong_drive"]["headroom"]
+        .as_f64()
+        .unwrap();
+    assert!(
+        ((strong - exact) / exact).abs() < 0.01,
+        "{strong} vs {exact}"
+    );
+    assert!(v["closed_forms"]["near_equilibrium"]["headroom"]
+        .as_f64()
+        .is_some());
+}
+
+#[test]
+fn regimes_command_tabulates_the_sweep() {
+    let out = run(&[
+        "regimes",
+        "problems/ring6.toml",
+        "--scale",
+        "stored",
+        "--from",
+        "0.01",
+        "--to",
+        "1000",
+        "--points",
+        "6",
+        "--json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let points = v["points"].as_array().unwrap();
+    assert_eq!(points.len(), 6);
+    assert_eq!(points[0]["regime"], "near equilibrium");
+    assert_eq!(points[5]["regime"], "strong drive");
+    // Theory note, section 6: the ring's headroom theta^2 k (n-1) / (4 n^2) at small theta
+    // (ring6: n = 6, k = 10, theta = 0.01 kT at the first scale).
+    let exact = points[0]["headroom"].as_f64().unwrap();
+    let formula = 0.01f64.powi(2) * 10.0 * 5.0 / (4.0 * 36.0);
+    assert!(
+        ((exact - formula) / formula).abs() < 1e-3,
+        "{exact} vs {formula}"
+    );
+    for bad in [
+        &["--scale", "speed"][..],
+        &["--scale", "work", "--from", "0"][..],
+    ] {
+        let out = run(&[&["regimes", "problems/ring6.toml"][..], bad].concat());
+        assert_eq!(out.status.code(), Some(2));
+    }
+}

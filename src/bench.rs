@@ -226,7 +226,7 @@ pub fn time_design(states: usize, k: usize, runs: usize) -> Result<DesignTiming,
     };
     let searcher = Searcher::new(
         &net,
-        candidates.clone(),
+        candidates.iter().map(|&c| vec![c]).collect(),
         SearchSettings::new(budget),
         (bound.baseline_power, bound.headroom()),
     )

@@ -245,6 +245,10 @@ struct SearchArgs {
     /// No progress bar
     #[arg(long, short)]
     quiet: bool,
+    /// With a fluctuating environment: pathways act the same in every environment state
+    /// (default: environment-aware, rates may differ per environment state)
+    #[arg(long)]
+    blind: bool,
 }
 
 impl SearchArgs {
@@ -257,6 +261,7 @@ impl SearchArgs {
             beam_width: self.beam_width,
             threads: self.threads,
             quiet: self.quiet,
+            blind: self.blind,
         }
     }
 }

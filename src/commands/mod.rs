@@ -210,7 +210,7 @@ fn resolve_pairs(model: &Model, text: Option<&str>) -> Result<PairSelection, Err
         Some(text) => model
             .parse_pairs(text)
             .map_err(|e| Error::Usage(format!("--pairs: {e}"))),
-        None => Ok(model.pathways.pairs.clone().unwrap_or_default()),
+        None => Ok(model.default_pairs()),
     }
 }
 

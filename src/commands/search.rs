@@ -79,12 +79,35 @@ fn resolve_budget(model: &Model, flags: &BudgetFlags) -> Result<Budget, Error> {
     Ok(budget)
 }
 
-/// Candidate pairs `(a, b)` of a selection.
-fn candidate_pairs(model: &Model, pairs: &PairSelection) -> Vec<(usize, usize)> {
-    design::candidates(model.network.len(), pairs)
+/// The candidate pathways of a selection: one per allowed pair or, environment-blind, one per
+/// pair of system states acting on its copies in every environment state with shared rates.
+fn candidate_pairs(
+    model: &Model,
+    pairs: &PairSelection,
+    blind: bool,
+) -> Result<Vec<Vec<(usize, usize)>>, Error> {
+    let each: Vec<(usize, usize)> = design::candidates(model.network.len(), pairs)
         .into_iter()
         .map(|c| (c.a, c.b))
-        .collect()
+        .collect();
+    if !blind {
+        return Ok(each.into_iter().map(|p| vec![p]).collect());
+    }
+    let Some(envs) = &model.environments else {
+        return Err(Error::Usage(
+            "--blind asks for pathways that act the same in every environment state, but this model has no [[environment]]: drop --blind".into(),
+        ));
+    };
+    let mut system: Vec<(usize, usize)> = each
+        .iter()
+        .map(|&(a, b)| {
+            let (sa, sb) = (envs.split(a).0, envs.split(b).0);
+            (sa.min(sb), sa.max(sb))
+        })
+        .collect();
+    system.sort_unstable();
+    system.dedup();
+    Ok(system.into_iter().map(|p| envs.copies(p)).collect())
 }
 
 /// `all pairs` or `A/B, C/D`.
@@ -103,6 +126,8 @@ pub struct SearchKnobs {
     /// Worker threads (0: one per core).
     pub threads: usize,
     pub quiet: bool,
+    /// Environment-blind pathways: the same rates in every environment state.
+    pub blind: bool,
 }
 
 impl Default for SearchKnobs {
@@ -121,6 +146,7 @@ impl Default for SearchKnobs {
             beam_width: s.beam_width,
             threads: 0,
             quiet: false,
+            blind: false,
         }
     }
 }
@@ -183,7 +209,7 @@ fn search_model(
 ) -> Result<Outcome, Error> {
     let searcher = Searcher::new(
         &model.network,
-        candidate_pairs(model, pairs),
+        candidate_pairs(model, pairs, knobs.blind)?,
         settings,
         (bound.baseline_power, bound.headroom()),
     )?;
@@ -242,7 +268,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     };
     let searcher = Searcher::new(
         &model.network,
-        candidate_pairs(&model, &pairs),
+        candidate_pairs(&model, &pairs, request.knobs.blind)?,
         settings,
         (bound.baseline_power, bound.headroom()),
     )?;
@@ -470,7 +496,7 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         }
         let relaxation = Searcher::new(
             &model.network,
-            candidate_pairs(&model, &pairs),
+            candidate_pairs(&model, &pairs, knobs.blind)?,
             settings,
             (bound.baseline_power, bound.headroom()),
         )?
@@ -540,7 +566,7 @@ pub fn compare(paths: &[PathBuf], request: &CompareRequest) -> Result<String, Er
     };
     let mut rows = Vec::with_capacity(models.len());
     for model in &models {
-        let pairs = model.pathways.pairs.clone().unwrap_or_default();
+        let pairs = model.default_pairs();
         let bound = solve_bound(model, &pairs)?;
         let budget = resolve_budget(model, &request.budget)?;
         let best = if budget.relaxed_cap().is_some() {

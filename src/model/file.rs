@@ -21,6 +21,27 @@ pub struct ModelFile {
     #[serde(default)]
     pub transition: Vec<Spanned<TransitionEntry>>,
     pub pathways: Option<Spanned<PathwaysEntry>>,
+    #[serde(default)]
+    pub environment: Vec<Spanned<EnvironmentEntry>>,
+    #[serde(default)]
+    pub switch: Vec<Spanned<SwitchEntry>>,
+}
+
+/// A state of a fluctuating environment (light, dark; fuel present, absent).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EnvironmentEntry {
+    pub name: Spanned<String>,
+}
+
+/// Switching of the environment between two of its states, in both directions.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SwitchEntry {
+    pub from: Spanned<String>,
+    pub to: Spanned<String>,
+    pub forward: Spanned<f64>,
+    pub backward: Spanned<f64>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -40,6 +61,8 @@ pub struct TransitionEntry {
     pub drive: Option<Spanned<f64>>,
     pub work: Option<Spanned<f64>>,
     pub label: Option<String>,
+    /// Environment states in which the transition exists (default: all).
+    pub environments: Option<Spanned<Vec<String>>>,
 }
 
 #[derive(Debug, Deserialize)]

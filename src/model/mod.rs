@@ -247,6 +247,75 @@ pub struct Model {
     pub network: Network,
     pub transitions: Vec<TransitionInfo>,
     pub pathways: PathwayDefaults,
+    /// The fluctuating environment, when the model has one: then the network is the joint
+    /// chain over (system state, environment state) and `state_names` are `state@environment`.
+    pub environments: Option<Environments>,
+}
+
+/// A fluctuating environment: joint state `s * E + e` is system state `s` in environment
+/// state `e` (of `E`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Environments {
+    pub names: Vec<String>,
+    pub system_states: Vec<String>,
+}
+
+impl Environments {
+    pub fn count(&self) -> usize {
+        self.names.len()
+    }
+
+    /// Joint index of system state `s` in environment state `e`.
+    pub fn joint(&self, s: usize, e: usize) -> usize {
+        s * self.count() + e
+    }
+
+    /// `(system state, environment state)` of a joint index.
+    pub fn split(&self, j: usize) -> (usize, usize) {
+        (j / self.count(), j % self.count())
+    }
+
+    /// `state@environment` for every joint state, in joint order.
+    pub fn joint_names(&self) -> Vec<String> {
+        (0..self.system_states.len() * self.count())
+            .map(|j| {
+                let (s, e) = self.split(j);
+                format!("{}@{}", self.system_states[s], self.names[e])
+            })
+            .collect()
+    }
+
+    /// The joint copies `(a@e, b@e)` of system pair `(a, b)`, one per environment state.
+    pub fn copies(&self, (a, b): (usize, usize)) -> Vec<(usize, usize)> {
+        (0..self.count())
+            .map(|e| (self.joint(a, e), self.joint(b, e)))
+            .collect()
+    }
+
+    /// System pairs of a selection over system states.
+    pub fn system_pairs(&self, pairs: &PairSelection) -> Vec<(usize, usize)> {
+        match pairs {
+            PairSelection::All => {
+                let n = self.system_states.len();
+                (0..n)
+                    .flat_map(|a| (a + 1..n).map(move |b| (a, b)))
+                    .collect()
+            }
+            PairSelection::Only(list) => list.clone(),
+        }
+    }
+
+    /// A selection over system states made into joint pairs within each environment state:
+    /// added pathways act between system states and never change the environment.
+    pub fn within_each(&self, pairs: &PairSelection) -> PairSelection {
+        let mut joint: Vec<(usize, usize)> = self
+            .system_pairs(pairs)
+            .into_iter()
+            .flat_map(|p| self.copies(p))
+            .collect();
+        joint.sort_unstable();
+        PairSelection::Only(joint)
+    }
 }
 
 impl Model {
@@ -289,9 +358,40 @@ impl Model {
             .unwrap_or_else(|| "model".to_string())
     }
 
-    /// Parses a pair list such as `A/B,C/D` (or `all`) against this model's state names.
+    /// Where added pathways may act by default: the `[pathways]` pairs, else every pair (with a
+    /// fluctuating environment: every pair of system states within each environment state).
+    pub fn default_pairs(&self) -> PairSelection {
+        self.pathways
+            .pairs
+            .clone()
+            .unwrap_or_else(|| match &self.environments {
+                Some(envs) => envs.within_each(&PairSelection::All),
+                None => PairSelection::All,
+            })
+    }
+
+    /// Parses a pair list such as `A/B,C/D` (or `all`) against this model's state names. With a
+    /// fluctuating environment, system state names stand for their copies in every environment
+    /// state and `state@environment` names for one copy.
     pub fn parse_pairs(&self, text: &str) -> Result<PairSelection, String> {
         let text = text.trim();
+        if let Some(envs) = &self.environments {
+            if text == "all" {
+                return Ok(envs.within_each(&PairSelection::All));
+            }
+            let system = envs
+                .system_states
+                .iter()
+                .position(|n| n == text.split('/').next().unwrap_or("").trim());
+            if system.is_some() || !text.contains('@') {
+                let view = Model {
+                    state_names: envs.system_states.clone(),
+                    environments: None,
+                    ..self.clone()
+                };
+                return Ok(envs.within_each(&view.parse_pairs(text)?));
+            }
+        }
         if text == "all" {
             return Ok(PairSelection::All);
         }

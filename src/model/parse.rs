@@ -2,9 +2,12 @@
 //! resolution, LDB completion and the structural checks of the model format. Each failure is
 //! returned as a located [`ModelError`] with a suggested fix; nothing is printed here.
 
-use super::file::{ModelFile, PairsEntry, PathwaysEntry, StateEntry, TransitionEntry};
+use super::file::{
+    EnvironmentEntry, ModelFile, PairsEntry, PathwaysEntry, StateEntry, SwitchEntry,
+    TransitionEntry,
+};
 use super::{
-    Channel, Completion, Model, ModelError, Network, PairSelection, PathwayDefaults,
+    Channel, Completion, Environments, Model, ModelError, Network, PairSelection, PathwayDefaults,
     TransitionInfo, DEFAULT_LDB_TOLERANCE,
 };
 use crate::units::{EnergyUnit, TimeUnit, Units};
@@ -84,11 +87,36 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
         channels.push(channel);
         transitions.push(info);
     }
-    let network = Network { energies, channels };
-    check_connected(&ctx, &network, &state_names, &file.state)?;
+    let system = Network { energies, channels };
+    let environment_names = parse_environments(&ctx, &file)?;
     let pathways = match &file.pathways {
         None => PathwayDefaults::default(),
         Some(p) => parse_pathways(&ctx, p.get_ref(), &index, &units)?,
+    };
+    let (network, state_names, transitions, environments, pathways) = match environment_names {
+        None => {
+            check_connected(&ctx, &system, &state_names, |i| {
+                Some(file.state[i].span().start)
+            })?;
+            (system, state_names, transitions, None, pathways)
+        }
+        Some(names) => {
+            let envs = Environments {
+                names,
+                system_states: state_names,
+            };
+            let (joint, infos) = joint_network(&ctx, &file, &system, &transitions, &envs)?;
+            let joint_names = envs.joint_names();
+            check_connected(&ctx, &joint, &joint_names, |j| {
+                Some(file.state[envs.split(j).0].span().start)
+            })?;
+            // Pairs name system states; added pathways act within one environment state.
+            let pathways = PathwayDefaults {
+                pairs: pathways.pairs.map(|p| envs.within_each(&p)),
+                ..pathways
+            };
+            (joint, joint_names, infos, Some(envs), pathways)
+        }
     };
     let title = file.title.clone().unwrap_or_else(|| {
         path.file_stem()
@@ -103,7 +131,166 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
         network,
         transitions,
         pathways,
+        environments,
     })
+}
+
+/// The `[[environment]]` names, or `None` for a model without a fluctuating environment (then
+/// `[[switch]]` tables and `environments` keys are errors).
+fn parse_environments(ctx: &Ctx, file: &ModelFile) -> Result<Option<Vec<String>>, ModelError> {
+    if file.environment.is_empty() {
+        if let Some(s) = file.switch.first() {
+            return ctx.at(s, "[[switch]] given but the model declares no [[environment]]", "declare the environment states with [[environment]] tables (name = ...), or remove the [[switch]]");
+        }
+        if let Some(e) = file
+            .transition
+            .iter()
+            .find_map(|t| t.get_ref().environments.as_ref())
+        {
+            return ctx.at(
+                e,
+                "`environments` given but the model declares no [[environment]]",
+                "declare the environment states with [[environment]] tables, or remove the key",
+            );
+        }
+        return Ok(None);
+    }
+    if file.environment.len() < 2 {
+        return ctx.at(&file.environment[0], "a fluctuating environment needs at least two [[environment]] states", "add another [[environment]] and the [[switch]] between them, or drop [[environment]] for a fixed environment");
+    }
+    let mut names: Vec<String> = Vec::new();
+    for entry in &file.environment {
+        let EnvironmentEntry { name } = entry.get_ref();
+        if !valid_name(name.get_ref()) {
+            return ctx.at(
+                name,
+                format!("environment name '{}' is not allowed", name.get_ref()),
+                "use a non-empty name of ASCII letters, digits and _ - . :",
+            );
+        }
+        if names.contains(name.get_ref()) {
+            return ctx.at(
+                name,
+                format!("environment name '{}' is used twice", name.get_ref()),
+                "give every environment state a unique name",
+            );
+        }
+        names.push(name.get_ref().clone());
+    }
+    if file.switch.is_empty() {
+        return ctx.at(
+            &file.environment[0],
+            "the environment states are declared but no [[switch]] joins them",
+            "add [[switch]] tables with from, to, forward and backward rates",
+        );
+    }
+    Ok(Some(names))
+}
+
+/// The joint chain over (system state, environment state): each transition copied into every
+/// environment state where it exists, each switch copied for every system state (no work; its
+/// drive follows from LDB, the switching rates being set by the outside world).
+fn joint_network(
+    ctx: &Ctx,
+    file: &ModelFile,
+    system: &Network,
+    infos: &[TransitionInfo],
+    envs: &Environments,
+) -> Result<(Network, Vec<TransitionInfo>), ModelError> {
+    let count = envs.names.len();
+    let env_index = |name: &str| envs.names.iter().position(|n| n == name);
+    let mut channels = Vec::new();
+    let mut out_infos = Vec::new();
+    for ((entry, c), info) in file.transition.iter().zip(&system.channels).zip(infos) {
+        let present: Vec<usize> = match &entry.get_ref().environments {
+            None => (0..count).collect(),
+            Some(list) => {
+                let mut present = Vec::new();
+                for name in list.get_ref() {
+                    match env_index(name) {
+                        Some(e) => present.push(e),
+                        None => {
+                            return ctx.at(
+                                list,
+                                format!(
+                                    "transition lists environment '{name}', which is not declared"
+                                ),
+                                format!(
+                                    "use declared environment names: {}",
+                                    envs.names.join(", ")
+                                ),
+                            )
+                        }
+                    }
+                }
+                if present.is_empty() {
+                    return ctx.at(list, "`environments` is an empty list", "list the environment states where the transition exists, or remove the key for all of them");
+                }
+                present
+            }
+        };
+        for e in present {
+            channels.push(Channel {
+                from: envs.joint(c.from, e),
+                to: envs.joint(c.to, e),
+                ..*c
+            });
+            out_infos.push(info.clone());
+        }
+    }
+    for entry in &file.switch {
+        let SwitchEntry {
+            from,
+            to,
+            forward,
+            backward,
+        } = entry.get_ref();
+        let find = |name: &Spanned<String>| {
+            env_index(name.get_ref()).map_or_else(
+                || {
+                    ctx.at(
+                        name,
+                        format!(
+                            "switch names environment '{}', which is not declared",
+                            name.get_ref()
+                        ),
+                        format!("use one of: {}", envs.names.join(", ")),
+                    )
+                },
+                Ok,
+            )
+        };
+        let (a, b) = (find(from)?, find(to)?);
+        if a == b {
+            return ctx.at(
+                to,
+                "a switch must join two different environment states",
+                "change `to`, or remove the switch",
+            );
+        }
+        let (k_f, k_b) = (
+            positive_rate(ctx, forward, "forward")?,
+            positive_rate(ctx, backward, "backward")?,
+        );
+        for s in 0..system.len() {
+            channels.push(Channel {
+                from: envs.joint(s, a),
+                to: envs.joint(s, b),
+                forward: k_f,
+                backward: k_b,
+                work: 0.0,
+                drive: (k_f / k_b).ln(),
+            });
+            out_infos.push(TransitionInfo {
+                label: Some(format!("switch {}->{}", from.get_ref(), to.get_ref())),
+                completion: Completion::DriveImplied,
+            });
+        }
+    }
+    let energies = (0..system.len() * count)
+        .map(|j| system.energies[envs.split(j).0])
+        .collect();
+    Ok((Network { energies, channels }, out_infos))
 }
 
 /// A fix for a TOML decoding message (unknown keys, wrong types, missing keys, syntax).
@@ -350,7 +537,7 @@ fn check_connected(
     ctx: &Ctx,
     network: &Network,
     names: &[String],
-    states: &[Spanned<StateEntry>],
+    locate: impl Fn(usize) -> Option<usize>,
 ) -> Result<(), ModelError> {
     let groups = network.components();
     if groups.len() <= 1 {
@@ -373,7 +560,7 @@ fn check_connected(
     };
     let first_of_second = groups[1][0];
     ctx.err(
-        Some(states[first_of_second].span().start),
+        locate(first_of_second),
         format!(
             "the network is not strongly connected: it splits into {} groups of states: {}{extra}",
             groups.len(),

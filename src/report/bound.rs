@@ -386,6 +386,14 @@ impl BoundReport {
 
 /// `all pairs` or `A/B,C/D` with state names.
 pub fn describe_pairs(model: &Model, pairs: &PairSelection) -> String {
+    if let Some(envs) = &model.environments {
+        if *pairs == envs.within_each(&PairSelection::All) {
+            return format!(
+                "every pair of system states, within each environment state ({})",
+                envs.names.join(", ")
+            );
+        }
+    }
     match pairs {
         PairSelection::All => "all pairs".to_string(),
         PairSelection::Only(list) => list

@@ -111,7 +111,9 @@ impl RankedDesign {
             achieved_power_roundoff: u.from_kt(roundoff),
             fraction_of_headroom: (headroom > 0.0)
                 .then(|| (power - bound.baseline_power) / headroom),
-            total_rate: pathways.iter().map(|p| p.forward + p.backward).sum(),
+            // A pathway acting in every environment state counts once against the budget.
+            total_rate: pathways.iter().map(|p| p.forward + p.backward).sum::<f64>()
+                / found.copies.max(1) as f64,
             largest_work: u.from_kt(pathways.iter().map(|p| p.work.abs()).fold(0.0, f64::max)),
             added_entropy_production: found.added_entropy,
         }
@@ -124,7 +126,11 @@ impl DesignReport {
         Self {
             title: model.title.clone(),
             units: UnitsJson::of(model),
-            pairs,
+            pairs: if outcome.blind {
+                format!("{pairs}; environment-blind: each pathway acts with the same rates in every environment state (its copies are listed)")
+            } else {
+                pairs
+            },
             baseline_power: model.units.from_kt(bound.baseline_power),
             bound: BoundNumbers::of(bound, &model.units),
             budget: BudgetJson::of(&s.budget, model),

@@ -130,12 +130,49 @@ impl RateMap<'_> {
     }
 }
 
+/// Where the pathways of one design act: each candidate pathway acts on one pair of states or,
+/// when environment-blind, on its copies in every environment state with the same rates.
+pub struct Layout {
+    pub members: Vec<Vec<(usize, usize)>>,
+}
+
+impl Layout {
+    /// Every pair the design acts on, candidate by candidate.
+    pub fn pairs(&self) -> Vec<(usize, usize)> {
+        self.members.iter().flatten().copied().collect()
+    }
+
+    /// Log-rates per pair from log-rates per candidate (two each).
+    pub fn expand(&self, x: &[f64]) -> Vec<f64> {
+        self.members
+            .iter()
+            .enumerate()
+            .flat_map(|(e, m)| m.iter().flat_map(move |_| [x[2 * e], x[2 * e + 1]]))
+            .collect()
+    }
+
+    /// Gradient per candidate from the gradient per pair (shared rates add up).
+    pub fn collapse(&self, g: &[f64]) -> Vec<f64> {
+        let mut out = vec![0.0; 2 * self.members.len()];
+        let mut k = 0;
+        for (e, m) in self.members.iter().enumerate() {
+            for _ in m {
+                out[2 * e] += g[2 * k];
+                out[2 * e + 1] += g[2 * k + 1];
+                k += 1;
+            }
+        }
+        out
+    }
+}
+
 /// The cost seen by argmin: minus the power gain over the baseline in units of `scale`, with
 /// the last evaluation cached (L-BFGS asks for cost and gradient at the same point).
 struct Problem<'a> {
     evaluator: &'a Evaluator,
     map: &'a RateMap<'a>,
-    pairs: &'a [(usize, usize)],
+    layout: &'a Layout,
+    pairs: Vec<(usize, usize)>,
     baseline: f64,
     scale: f64,
     scorings: &'a AtomicUsize,
@@ -150,9 +187,8 @@ impl Problem<'_> {
             }
         }
         self.scorings.fetch_add(1, Ordering::Relaxed);
-        let eval = self
-            .evaluator
-            .evaluate(self.pairs, &self.map.log_rates(theta), true);
+        let log_rates = self.layout.expand(&self.map.log_rates(theta));
+        let eval = self.evaluator.evaluate(&self.pairs, &log_rates, true);
         *self.cache.borrow_mut() = Some((theta.to_vec(), eval.clone()));
         eval
     }
@@ -176,7 +212,7 @@ impl Gradient for Problem<'_> {
     type Gradient = Vec<f64>;
     fn gradient(&self, theta: &Self::Param) -> Result<Vec<f64>, ArgminError> {
         let eval = self.evaluation(theta);
-        let by_rate = eval.gradient.unwrap_or_default();
+        let by_rate = self.layout.collapse(&eval.gradient.unwrap_or_default());
         Ok(self
             .map
             .pull_back(theta, &by_rate)
@@ -196,14 +232,19 @@ pub struct LocalBest {
 pub fn maximise(
     evaluator: &Evaluator,
     map: &RateMap,
-    pairs: &[(usize, usize)],
+    layout: &Layout,
     start: Vec<f64>,
     (baseline, scale): (f64, f64),
     scorings: &AtomicUsize,
 ) -> LocalBest {
+    let pairs = layout.pairs();
+    let start_power = evaluator
+        .evaluate(&pairs, &layout.expand(&map.log_rates(&start)), false)
+        .power;
     let problem = Problem {
         evaluator,
         map,
+        layout,
         pairs,
         baseline,
         scale: scale.max(f64::MIN_POSITIVE),
@@ -211,9 +252,6 @@ pub fn maximise(
         cache: RefCell::new(None),
     };
     scorings.fetch_add(1, Ordering::Relaxed);
-    let start_power = evaluator
-        .evaluate(pairs, &map.log_rates(&start), false)
-        .power;
     let mut best = LocalBest {
         theta: start.clone(),
         power: if start_power.is_finite() {

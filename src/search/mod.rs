@@ -17,7 +17,7 @@ use crate::bound::objective::Objective;
 use crate::model::Network;
 use crate::steady::SolveError;
 use evaluate::Evaluator;
-use local::RateMap;
+use local::{Layout, RateMap};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -111,6 +111,9 @@ pub struct Found {
     /// Some pathway carries almost no traffic at the optimum: the design is really one of a
     /// smaller set, so it is not ranked.
     pub reducible: bool,
+    /// Pairs each pathway acts on: 1, or the number of environment states when it acts the
+    /// same in all of them (then `pairs` and `log_rates` list every copy).
+    pub copies: usize,
 }
 
 /// Traffic (`f + g`) below this share of the busiest pathway's marks a pathway as idle.
@@ -155,7 +158,8 @@ pub struct Part {
     /// Identifies the model and the search, so parts of different searches never merge.
     pub fingerprint: String,
     pub settings: SearchSettings,
-    pub candidates: Vec<(usize, usize)>,
+    /// Where each candidate pathway acts (one pair, or its copies in every environment state).
+    pub candidates: Vec<Vec<(usize, usize)>>,
     pub strategy: Strategy,
     pub shard: Shard,
     /// Sets in the search space (all sizes 1..k).
@@ -267,7 +271,7 @@ pub struct Searcher<'a> {
     network: &'a Network,
     objective: Objective,
     evaluator: Evaluator,
-    candidates: Vec<(usize, usize)>,
+    candidates: Vec<Vec<(usize, usize)>>,
     settings: SearchSettings,
     baseline: f64,
     /// Headroom to the universal bound: the optimiser's scale and the pruning margin's.
@@ -275,10 +279,11 @@ pub struct Searcher<'a> {
 }
 
 impl<'a> Searcher<'a> {
-    /// A searcher over `candidates` pairs. `baseline_power` and `headroom` come from the bound.
+    /// A searcher over `candidates`, each a pathway acting on one pair or, environment-blind,
+    /// on several pairs with shared rates. `baseline_power` and `headroom` come from the bound.
     pub fn new(
         network: &'a Network,
-        candidates: Vec<(usize, usize)>,
+        candidates: Vec<Vec<(usize, usize)>>,
         settings: SearchSettings,
         (baseline_power, headroom): (f64, f64),
     ) -> Result<Self, SearchError> {
@@ -368,25 +373,30 @@ impl<'a> Searcher<'a> {
         if relaxed.as_ref().is_some_and(|r| r.upper <= threshold) {
             return None;
         }
-        let pairs: Vec<(usize, usize)> = set.iter().map(|&i| self.candidates[i]).collect();
+        let layout = Layout {
+            members: set.iter().map(|&i| self.candidates[i].clone()).collect(),
+        };
         let map = RateMap {
             budget: &self.settings.budget,
-            drops: pairs
+            // Copies of one pathway join states of equal energies, so the first one speaks for all.
+            drops: layout
+                .members
                 .iter()
-                .map(|&(a, b)| self.network.energies[a] - self.network.energies[b])
+                .map(|m| self.network.energies[m[0].0] - self.network.energies[m[0].1])
                 .collect(),
         };
         let scale = (self.baseline, self.headroom);
         let best = self
             .starts(set, &map, relaxed.as_ref())
             .into_iter()
-            .map(|start| local::maximise(&self.evaluator, &map, &pairs, start, scale, scorings))
+            .map(|start| local::maximise(&self.evaluator, &map, &layout, start, scale, scorings))
             .fold(None::<local::LocalBest>, |best, next| match best {
                 Some(b) if b.power >= next.power => Some(b),
                 _ => Some(next),
             })
             .expect("at least one start");
-        let (log_rates, eval) = self.fill_budget(&pairs, map.log_rates(&best.theta), scorings);
+        let (own_rates, eval) = self.fill_budget(&layout, map.log_rates(&best.theta), scorings);
+        let (pairs, log_rates) = (layout.pairs(), layout.expand(&own_rates));
         let one_way: Vec<(f64, f64)> = pairs
             .iter()
             .enumerate()
@@ -409,9 +419,14 @@ impl<'a> Searcher<'a> {
             .sum();
         // A pathway the optimum all but switches off makes this set a copy of a smaller one,
         // which the search scores on its own.
-        let busiest = one_way.iter().map(|(f, g)| f + g).fold(0.0, f64::max);
-        let reducible =
-            set.len() > 1 && one_way.iter().any(|(f, g)| f + g < IDLE_TRAFFIC * busiest);
+        let mut traffic = one_way.iter().map(|(f, g)| f + g);
+        let per_candidate: Vec<f64> = layout
+            .members
+            .iter()
+            .map(|m| traffic.by_ref().take(m.len()).sum())
+            .collect();
+        let busiest = per_candidate.iter().copied().fold(0.0, f64::max);
+        let reducible = set.len() > 1 && per_candidate.iter().any(|t| *t < IDLE_TRAFFIC * busiest);
         Some(Found {
             set: set.to_vec(),
             pairs,
@@ -420,6 +435,7 @@ impl<'a> Searcher<'a> {
             verified: None,
             added_entropy,
             reducible,
+            copies: layout.members[0].len(),
         })
     }
 
@@ -428,7 +444,7 @@ impl<'a> Searcher<'a> {
     /// the cycle up. Kept only if the power does not fall.
     fn fill_budget(
         &self,
-        pairs: &[(usize, usize)],
+        layout: &Layout,
         log_rates: Vec<f64>,
         scorings: &AtomicUsize,
     ) -> (Vec<f64>, evaluate::Evaluation) {
@@ -442,7 +458,10 @@ impl<'a> Searcher<'a> {
         .into_iter()
         .flatten()
         .fold(f64::INFINITY, f64::min);
-        let base = self.evaluator.evaluate(pairs, &log_rates, false);
+        let pairs = layout.pairs();
+        let base = self
+            .evaluator
+            .evaluate(&pairs, &layout.expand(&log_rates), false);
         scorings.fetch_add(2, Ordering::Relaxed);
         if !(room.is_finite() && room > 0.0) {
             return (log_rates, base);
@@ -450,7 +469,9 @@ impl<'a> Searcher<'a> {
         // Stay a hair inside the limits so round-off never breaks them.
         let shift = room - 1e-12;
         let filled: Vec<f64> = log_rates.iter().map(|x| x + shift).collect();
-        let eval = self.evaluator.evaluate(pairs, &filled, false);
+        let eval = self
+            .evaluator
+            .evaluate(&pairs, &layout.expand(&filled), false);
         if eval.power >= base.power {
             (filled, eval)
         } else {
@@ -465,12 +486,11 @@ impl<'a> Searcher<'a> {
     /// pruned on its word.
     fn relaxation(&self, set: &[usize]) -> Option<Relaxed> {
         let cap = self.settings.budget.relaxed_cap().unwrap_or(f64::INFINITY);
+        // Copies of a blind pathway get their own rates here: a relaxation of the shared ones.
         let list: Vec<Candidate> = set
             .iter()
-            .map(|&i| Candidate {
-                a: self.candidates[i].0,
-                b: self.candidates[i].1,
-            })
+            .flat_map(|&i| &self.candidates[i])
+            .map(|&(a, b)| Candidate { a, b })
             .collect();
         let s = conic::capped(&self.objective, &list, cap, conic::TIGHT).ok()?;
         let dual_bound = s.dual_bound?;
@@ -485,14 +505,26 @@ impl<'a> Searcher<'a> {
         // solver's tolerance: pruning must never drop a set that could enter the ranking.
         let value = value.max(dual_bound);
         let margin = 1e-5 * (self.headroom + self.baseline.abs());
-        let rates = list
+        // One start per candidate: the geometric mean of its copies' optimal rates.
+        let mut per_pair = list.iter().enumerate().map(|(e, c)| {
+            (
+                (s.forward_flux[e] / s.p[c.a].max(f64::MIN_POSITIVE))
+                    .max(f64::MIN_POSITIVE)
+                    .ln(),
+                (s.backward_flux[e] / s.p[c.b].max(f64::MIN_POSITIVE))
+                    .max(f64::MIN_POSITIVE)
+                    .ln(),
+            )
+        });
+        let rates = set
             .iter()
-            .enumerate()
-            .map(|(e, c)| {
-                (
-                    s.forward_flux[e] / s.p[c.a].max(f64::MIN_POSITIVE),
-                    s.backward_flux[e] / s.p[c.b].max(f64::MIN_POSITIVE),
-                )
+            .map(|&i| {
+                let copies = self.candidates[i].len();
+                let (f, g) = per_pair
+                    .by_ref()
+                    .take(copies)
+                    .fold((0.0, 0.0), |(f, g), (x, y)| (f + x, g + y));
+                ((f / copies as f64).exp(), (g / copies as f64).exp())
             })
             .collect();
         value.is_finite().then_some(Relaxed {
@@ -765,6 +797,8 @@ pub fn fingerprint(network: &Network) -> String {
 pub struct Outcome {
     pub settings: SearchSettings,
     pub candidate_pairs: usize,
+    /// Each candidate acts with shared rates on its copies in every environment state.
+    pub blind: bool,
     pub strategy: Strategy,
     pub space: u64,
     /// Sets scored (each once).
@@ -814,6 +848,7 @@ pub fn merge(parts: Vec<Part>) -> Result<Outcome, SearchError> {
     Ok(Outcome {
         settings: first.settings,
         candidate_pairs: first.candidates.len(),
+        blind: first.candidates.iter().any(|c| c.len() > 1),
         strategy: first.strategy,
         space: first.space,
         evaluated: first.singles + branches.iter().map(|b| b.scored).sum::<u64>(),

@@ -3,6 +3,7 @@
 mod bound;
 mod common;
 mod design;
+mod environment;
 mod errors;
 mod published;
 mod reference;

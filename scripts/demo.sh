@@ -14,5 +14,10 @@ for model in problems/*.toml; do
   $bin sweep "$model" --over rate-cap=1..1e6 --points 13 --save --quiet > /dev/null
   echo "results/$(basename "$model" .toml)/ regenerated"
 done
+$bin design problems/flicker.toml --blind --quiet > results/flicker/design-blind.txt
+$bin regimes problems/ring6.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
+$bin regimes problems/walker.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
+$bin regimes problems/photoswitch.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
+echo "regimes sweeps regenerated"
 $bin compare problems/*.toml --save --quiet > /dev/null
 echo "results/compare/ regenerated"

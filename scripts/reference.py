@@ -76,7 +76,26 @@ def load_model(path):
             kb = mp.mpf(t["backward"])
             drive = mp.log(kf / kb) - bias
         channels.append((a, b, kf, kb, work, drive))
-    return {"names": names, "energy": energy, "channels": channels, "to_kt": to_kt}
+    if "environment" not in data:
+        return {"names": names, "energy": energy, "channels": channels, "to_kt": to_kt}
+    # Fluctuating environment: the joint chain over (state, environment), written here from the
+    # README's description (joint state s*E + e; each transition copied into the environment
+    # states it lists, in that order, else all; then each switch copied for every state, with
+    # its drive from LDB), independently of the Rust construction.
+    envs = [e["name"] for e in data["environment"]]
+    count = len(envs)
+    joint_channels = []
+    for t, (a, b, kf, kb, work, drive) in zip(data["transition"], channels):
+        for e in [envs.index(x) for x in t.get("environments", envs)]:
+            joint_channels.append((a * count + e, b * count + e, kf, kb, work, drive))
+    for s in data["switch"]:
+        x, y = envs.index(s["from"]), envs.index(s["to"])
+        kf, kb = mp.mpf(s["forward"]), mp.mpf(s["backward"])
+        for i in range(len(names)):
+            joint_channels.append((i * count + x, i * count + y, kf, kb, mp.mpf(0), mp.log(kf / kb)))
+    joint_names = [f"{n}@{e}" for n in names for e in envs]
+    joint_energy = [energy[j // count] for j in range(len(names) * count)]
+    return {"names": joint_names, "energy": joint_energy, "channels": joint_channels, "to_kt": to_kt}
 
 
 def generator_mp(model):

@@ -66,7 +66,12 @@ impl RegimesReport {
         let opt = |x: Option<f64>| x.map_or("-".to_string(), num);
         let err = |x: Option<f64>| {
             x.map_or("-".to_string(), |e| {
-                format!("{}{}", if e < 0.0 { "-" } else { "" }, percent(e.abs()))
+                let sign = if e < 0.0 { "-" } else { "" };
+                if e.abs() < 10.0 {
+                    format!("{sign}{}", percent(e.abs()))
+                } else {
+                    format!("{:.1e}%", 100.0 * e)
+                }
             })
         };
         for pt in &self.points {

@@ -1,7 +1,7 @@
 //! The `ergopath` binary: parses flags, calls [`ergopath::commands`], prints the result.
 //! Errors go to standard error with exit status 2 (bad input) or 1 (computation failed).
 
-use clap::{Args, Parser, Subcommand};
+use clap::{Args, CommandFactory, Parser, Subcommand};
 use ergopath::commands::{self, Format};
 use std::io::Write;
 use std::path::PathBuf;
@@ -21,6 +21,23 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// Write a commented model template to NAME.toml to start from
+    #[command(after_help = "Example:\n  ergopath new my_motor && ergopath check my_motor.toml")]
+    New {
+        /// Name of the new model file (.toml is added)
+        name: String,
+    },
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell)
+    #[command(
+        after_help = "Example:\n  ergopath completions bash > ~/.local/share/bash-completion/completions/ergopath"
+    )]
+    Completions {
+        /// The shell
+        shell: clap_complete::Shell,
+    },
+    /// Print the manual page (roff) to standard output
+    #[command(after_help = "Example:\n  ergopath man > ergopath.1 && man ./ergopath.1")]
+    Man,
     /// Validate a model file and summarise it (states, transitions, implied values, cycles)
     #[command(after_help = "Example:\n  ergopath check problems/walker.toml")]
     Check {
@@ -317,6 +334,21 @@ impl FormatFlags {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match &cli.command {
+        Command::New { name } => commands::new_model(name),
+        Command::Completions { shell } => {
+            let mut out = Vec::new();
+            clap_complete::generate(*shell, &mut Cli::command(), "ergopath", &mut out);
+            Ok(String::from_utf8_lossy(&out).into_owned())
+        }
+        Command::Man => {
+            let mut out = Vec::new();
+            match clap_mangen::Man::new(Cli::command()).render(&mut out) {
+                Ok(()) => Ok(String::from_utf8_lossy(&out).into_owned()),
+                Err(e) => Err(ergopath::Error::Usage(format!(
+                    "cannot render the manual: {e}"
+                ))),
+            }
+        }
         Command::Check { model } => commands::check(model),
         Command::Steady {
             model,

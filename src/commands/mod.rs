@@ -64,6 +64,16 @@ fn save(root: &Path, model: &Model, files: &[(&str, &str)]) -> Result<String, Er
         crate::report::output::write_atomic(&path, contents.as_bytes())?;
         written.push(path.display().to_string());
     }
+    let summary =
+        crate::report::summary::report_markdown(&dir, &model.title).map_err(|source| {
+            crate::report::output::OutputError::Write {
+                path: dir.clone(),
+                source,
+            }
+        })?;
+    let report = dir.join("report.md");
+    crate::report::output::write_atomic(&report, summary.as_bytes())?;
+    written.push(report.display().to_string());
     Ok(format!("\n  saved: {}\n", written.join(", ")))
 }
 
@@ -391,4 +401,27 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
         request.save_root.as_deref(),
         rendered,
     )
+}
+
+/// The commented model template written by `ergopath new`.
+pub const TEMPLATE: &str = include_str!("../template.toml");
+
+/// `ergopath new`: writes the commented template to `NAME.toml`, never over an existing file.
+pub fn new_model(name: &str) -> Result<String, Error> {
+    let path = if name.ends_with(".toml") {
+        std::path::PathBuf::from(name)
+    } else {
+        std::path::PathBuf::from(format!("{name}.toml"))
+    };
+    if path.exists() {
+        return Err(Error::Usage(format!(
+            "{} already exists: give another name, or remove the file first",
+            path.display()
+        )));
+    }
+    crate::report::output::write_atomic(&path, TEMPLATE.as_bytes())?;
+    Ok(format!(
+        "wrote {p}, a commented three-state example to edit\n  next: ergopath check {p}\n",
+        p = path.display()
+    ))
 }

@@ -43,6 +43,13 @@ impl Ctx<'_> {
 
 pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> {
     let ctx = Ctx { path, text };
+    if text.trim().is_empty() {
+        return ctx.err(
+            None,
+            "the file is empty",
+            "write a model there: `ergopath new NAME` writes a commented template to start from",
+        );
+    }
     let file: ModelFile = toml::from_str(text).map_err(|e| {
         ModelError::at(
             path,

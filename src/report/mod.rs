@@ -13,6 +13,7 @@ pub mod design;
 pub mod output;
 pub mod regimes;
 pub mod steady;
+pub mod summary;
 pub mod svg;
 pub mod sweep;
 pub mod table;

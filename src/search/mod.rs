@@ -116,6 +116,9 @@ pub struct Found {
     pub copies: usize,
 }
 
+/// Added rates are kept within this many decades below the rate limit.
+pub const RATE_FLOOR_DECADES: f64 = 40.0;
+
 /// Traffic (`f + g`) below this share of the busiest pathway's marks a pathway as idle.
 pub const IDLE_TRAFFIC: f64 = 1e-6;
 
@@ -395,7 +398,17 @@ impl<'a> Searcher<'a> {
                 _ => Some(next),
             })
             .expect("at least one start");
-        let (own_rates, eval) = self.fill_budget(&layout, map.log_rates(&best.theta), scorings);
+        // Where every pathway only costs power (no headroom), the optimiser drives rates toward
+        // zero without end; a floor far below the limit keeps them positive and the work per
+        // jump finite, at no visible cost in power.
+        let floor = self.settings.budget.relaxed_cap().unwrap_or(1.0).ln()
+            - RATE_FLOOR_DECADES * 10f64.ln();
+        let floored: Vec<f64> = map
+            .log_rates(&best.theta)
+            .iter()
+            .map(|x| x.max(floor))
+            .collect();
+        let (own_rates, eval) = self.fill_budget(&layout, floored, scorings);
         let (pairs, log_rates) = (layout.pairs(), layout.expand(&own_rates));
         let one_way: Vec<(f64, f64)> = pairs
             .iter()

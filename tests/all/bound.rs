@@ -1,49 +1,12 @@
 //! The universal bound: its safety (no added pathways ever beat the certificate), its tightness
 //! (the tree design reaches it), the closed form of the theory note, and the capped design.
 
-use crate::common::{close, load, parse};
+use crate::common::{close, load, network_strategy, parse};
 use ergopath::bound::design::{self, Pathway, TreeDesign};
 use ergopath::bound::{self, BoundSettings};
 use ergopath::model::{Channel, Network, PairSelection};
 use ergopath::steady::{self, SteadySettings};
 use proptest::prelude::*;
-
-/// A random irreducible network: ring plus chords, energies within +-10 kT, rates 1e-3..1e3,
-/// drives and work labels of a few kT.
-fn network_strategy() -> impl Strategy<Value = Network> {
-    (3usize..=8).prop_flat_map(|n| {
-        let energies = prop::collection::vec(-10.0f64..10.0, n);
-        let edges = prop::collection::vec(
-            (0..n, 0..n, -3.0f64..3.0, -3.0f64..3.0, -3.0f64..3.0),
-            n..2 * n + 1,
-        );
-        (energies, edges).prop_map(move |(energies, edges)| {
-            let mut channels = Vec::new();
-            let mut push = |from: usize, to: usize, log_rate: f64, drive: f64, work: f64| {
-                channels.push(Channel::balanced(
-                    &energies,
-                    from,
-                    to,
-                    10f64.powf(log_rate),
-                    work,
-                    drive,
-                ));
-            };
-            for (i, &(_, _, lr, d, w)) in edges.iter().enumerate().take(n) {
-                push(i, (i + 1) % n, lr, d, w); // the ring keeps it irreducible
-            }
-            for &(a, b, lr, d, w) in edges.iter().skip(n) {
-                if a != b {
-                    push(a, b, lr, d, w);
-                }
-            }
-            Network {
-                energies: energies.clone(),
-                channels,
-            }
-        })
-    })
-}
 
 /// Random added pathways (d = 0, LDB by construction): pairs and log-rates.
 fn pathways_strategy() -> impl Strategy<Value = Vec<(usize, usize, f64, f64)>> {
@@ -56,7 +19,7 @@ proptest! {
     /// Theory note, section 3: for ANY added pathways obeying LDB with zero drive, the total
     /// power at the joint steady state is at most Phi*, hence at most the certified upper value.
     #[test]
-    fn no_added_pathways_beat_the_certified_bound(net in network_strategy(), added in pathways_strategy()) {
+    fn no_added_pathways_beat_the_certified_bound(net in network_strategy(8), added in pathways_strategy()) {
         let n = net.len();
         let b = bound::solve(&net, &PairSelection::All, &BoundSettings::default()).unwrap();
         prop_assert!(b.certified_upper >= b.power);
@@ -83,7 +46,7 @@ proptest! {
     /// its traffic grows; at large traffic it reaches >= 99.9% of the headroom, verified by an
     /// independent steady-state solve, with the free-energy balance of the joint network intact.
     #[test]
-    fn tree_design_reaches_the_bound_at_large_traffic(net in network_strategy()) {
+    fn tree_design_reaches_the_bound_at_large_traffic(net in network_strategy(8)) {
         let b = bound::solve(&net, &PairSelection::All, &BoundSettings::default()).unwrap();
         let headroom = b.headroom();
         prop_assume!(headroom > 1e-9 * b.power.abs().max(1e-6));

@@ -1,6 +1,7 @@
 //! Helpers shared by the integration tests: paths, model loading, running the binary.
 
-use ergopath::model::Model;
+use ergopath::model::{Channel, Model, Network};
+use proptest::prelude::*;
 use std::path::{Path, PathBuf};
 use std::process::Output;
 
@@ -54,4 +55,41 @@ pub fn all_models() -> Vec<String> {
         out.extend(here);
     }
     out
+}
+
+/// A random irreducible network of 3 to `max` states: ring plus chords, energies within +-10 kT,
+/// rates 1e-3..1e3, drives and work labels of a few kT.
+pub fn network_strategy(max: usize) -> impl Strategy<Value = Network> {
+    (3usize..=max).prop_flat_map(|n| {
+        let energies = prop::collection::vec(-10.0f64..10.0, n);
+        let edges = prop::collection::vec(
+            (0..n, 0..n, -3.0f64..3.0, -3.0f64..3.0, -3.0f64..3.0),
+            n..2 * n + 1,
+        );
+        (energies, edges).prop_map(move |(energies, edges)| {
+            let mut channels = Vec::new();
+            let mut push = |from: usize, to: usize, log_rate: f64, drive: f64, work: f64| {
+                channels.push(Channel::balanced(
+                    &energies,
+                    from,
+                    to,
+                    10f64.powf(log_rate),
+                    work,
+                    drive,
+                ));
+            };
+            for (i, &(_, _, lr, d, w)) in edges.iter().enumerate().take(n) {
+                push(i, (i + 1) % n, lr, d, w); // the ring keeps it irreducible
+            }
+            for &(a, b, lr, d, w) in edges.iter().skip(n) {
+                if a != b {
+                    push(a, b, lr, d, w);
+                }
+            }
+            Network {
+                energies: energies.clone(),
+                channels,
+            }
+        })
+    })
 }

@@ -2,9 +2,12 @@
 
 mod bound;
 mod common;
+mod corpus;
 mod design;
 mod environment;
 mod errors;
+mod first_use;
+mod invariants;
 mod published;
 mod reference;
 mod regimes;

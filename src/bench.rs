@@ -164,6 +164,7 @@ pub fn time_bound(
             // The benchmark's own conic limit decides which sizes the conic route gets.
             let settings = BoundSettings {
                 newton_only,
+                conic_first: !newton_only,
                 conic_limit: usize::MAX,
                 ..Default::default()
             };

@@ -16,6 +16,16 @@ fn pathways_strategy() -> impl Strategy<Value = Vec<(usize, usize, f64, f64)>> {
 proptest! {
     #![proptest_config(ProptestConfig { cases: 1500, ..ProptestConfig::default() })]
 
+    /// The two solvers of the bound agree: Newton's method from the baseline and the conic
+    /// program (Clarabel) with Newton's polish, to 1e-8 relative.
+    #[test]
+    fn newton_and_conic_routes_agree(net in network_strategy(8)) {
+        let newton = bound::solve(&net, &PairSelection::All, &BoundSettings { newton_only: true, ..Default::default() }).unwrap();
+        let conic = bound::solve(&net, &PairSelection::All, &BoundSettings { conic_first: true, ..Default::default() }).unwrap();
+        prop_assert!(close(newton.power, conic.power, 1e-8, 1e-12 * net.max_rate()),
+            "newton {} vs conic {} ({})", newton.power, conic.power, conic.route);
+    }
+
     /// Theory note, section 3: for ANY added pathways obeying LDB with zero drive, the total
     /// power at the joint steady state is at most Phi*, hence at most the certified upper value.
     #[test]
@@ -234,7 +244,12 @@ fn examples_are_certified_and_restrictions_only_lower_the_bound() {
     for path in crate::common::all_models() {
         let model = load(&path);
         let net = &model.network;
-        let full = bound::solve(net, &PairSelection::All, &BoundSettings::default()).unwrap();
+        // The conic route first (Clarabel, then Newton's polish) as the cross-check of Newton.
+        let conic = BoundSettings {
+            conic_first: true,
+            ..Default::default()
+        };
+        let full = bound::solve(net, &PairSelection::All, &conic).unwrap();
         assert!(
             full.relative_gap() <= 1e-8,
             "{path}: gap {}",

@@ -6,6 +6,7 @@ mod corpus;
 mod design;
 mod environment;
 mod errors;
+mod extremes;
 mod first_use;
 mod invariants;
 mod published;

@@ -232,7 +232,9 @@ pub fn time_design(states: usize, k: usize, runs: usize) -> Result<DesignTiming,
         (bound.baseline_power, bound.headroom()),
     )
     .map_err(|e| SolveError::Unresolved(e.to_string()))?;
-    let (seconds, part) = median_seconds(runs, || searcher.run(Shard::WHOLE, &Silent));
+    let (seconds, part) = median_seconds(runs, || {
+        searcher.run(Shard::WHOLE, &Silent, &crate::search::NoCheckpoint)
+    });
     let outcome = crate::search::merge(vec![
         part.map_err(|e| SolveError::Unresolved(e.to_string()))?
     ])

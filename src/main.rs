@@ -93,6 +93,15 @@ enum Command {
         /// Score only shard I of N (0-based) and write its part file for `ergopath merge`
         #[arg(long, value_name = "I/N", value_parser = parse_shard)]
         shard: Option<(usize, usize)>,
+        /// Keep finished branches in FILE as the search goes; Ctrl-C then stops cleanly
+        #[arg(long, value_name = "FILE")]
+        checkpoint: Option<PathBuf>,
+        /// Continue an interrupted search from its --checkpoint FILE
+        #[arg(long, requires = "checkpoint")]
+        resume: bool,
+        /// Testing aid: stop as if interrupted after N new branches
+        #[arg(long, hide = true)]
+        stop_after_branches: Option<usize>,
         #[command(flatten)]
         format: FormatFlags,
         #[command(flatten)]
@@ -413,6 +422,9 @@ fn main() -> ExitCode {
             budget,
             search,
             shard,
+            checkpoint,
+            resume,
+            stop_after_branches,
             format,
             save,
         } => commands::design(
@@ -422,6 +434,9 @@ fn main() -> ExitCode {
                 budget: budget.flags(),
                 knobs: search.knobs(),
                 shard: *shard,
+                checkpoint: checkpoint.clone(),
+                resume: *resume,
+                stop_after: *stop_after_branches,
                 format: format.format(),
                 save_root: save.root(),
             },

@@ -27,6 +27,9 @@ pub enum Error {
     Solve(#[from] SolveError),
     #[error(transparent)]
     Output(#[from] OutputError),
+    /// Stopped on request (Ctrl-C) with the progress kept.
+    #[error("{0}")]
+    Interrupted(String),
 }
 
 impl Error {
@@ -35,6 +38,8 @@ impl Error {
         match self {
             Error::Model(_) | Error::Usage(_) => 2,
             Error::Solve(_) | Error::Output(_) => 1,
+            // The conventional status of a process stopped by SIGINT.
+            Error::Interrupted(_) => 130,
         }
     }
 }

@@ -21,8 +21,107 @@ impl From<SearchError> for Error {
     fn from(e: SearchError) -> Self {
         match e {
             SearchError::Solve(s) => Error::Solve(s),
+            SearchError::Interrupted { finished, total } => Error::Interrupted(format!(
+                "interrupted: {finished} of {total} branches finished"
+            )),
             other => Error::Usage(other.to_string()),
         }
+    }
+}
+
+/// What a checkpoint file holds: the identity of the search and its finished branches.
+#[derive(Debug, Serialize, Deserialize)]
+struct CheckpointFile {
+    fingerprint: String,
+    settings: SearchSettings,
+    candidates: Vec<Vec<(usize, usize)>>,
+    finished: Vec<search::BranchResult>,
+}
+
+/// Keeps finished branches in a file (rewritten atomically after each branch) and stops the
+/// search on Ctrl-C or, for tests, after a given number of new branches.
+struct FileKeeper {
+    path: PathBuf,
+    file: std::sync::Mutex<CheckpointFile>,
+    stop_after: Option<usize>,
+    new_branches: std::sync::atomic::AtomicUsize,
+}
+
+/// Set by the Ctrl-C handler.
+static INTERRUPTED: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
+
+impl FileKeeper {
+    /// A keeper for `searcher`'s search at `path`; with `resume`, the file must exist and
+    /// belong to the same search.
+    fn open(
+        path: &Path,
+        searcher: &Searcher,
+        resume: bool,
+        stop_after: Option<usize>,
+    ) -> Result<Self, Error> {
+        let (fingerprint, settings, candidates) = searcher.identity();
+        let mut file = CheckpointFile {
+            fingerprint,
+            settings,
+            candidates,
+            finished: Vec::new(),
+        };
+        if resume {
+            let text = std::fs::read_to_string(path).map_err(|e| {
+                Error::Usage(format!("--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh", path.display()))
+            })?;
+            let kept: CheckpointFile = serde_json::from_str(&text).map_err(|e| {
+                Error::Usage(format!("--resume: {} is not a checkpoint written by `ergopath design --checkpoint` ({e})", path.display()))
+            })?;
+            if kept.fingerprint != file.fingerprint
+                || kept.settings != file.settings
+                || kept.candidates != file.candidates
+            {
+                return Err(Error::Usage(format!(
+                    "--resume: {} belongs to another model or other search settings; give the same model and flags, or start afresh without --resume",
+                    path.display()
+                )));
+            }
+            file.finished = kept.finished;
+        }
+        // The first Ctrl-C asks the search to stop after the branches in flight; a handler
+        // can be set only once per process, which is all a command needs.
+        let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
+        Ok(Self {
+            path: path.to_path_buf(),
+            file: std::sync::Mutex::new(file),
+            stop_after,
+            new_branches: std::sync::atomic::AtomicUsize::new(0),
+        })
+    }
+}
+
+impl search::Keeper for FileKeeper {
+    fn finished(&self) -> Vec<search::BranchResult> {
+        self.file
+            .lock()
+            .map(|f| f.finished.clone())
+            .unwrap_or_default()
+    }
+
+    fn record(&self, result: &search::BranchResult) {
+        use std::sync::atomic::Ordering;
+        self.new_branches.fetch_add(1, Ordering::SeqCst);
+        if let Ok(mut file) = self.file.lock() {
+            file.finished.push(result.clone());
+            // A failed write loses only this branch's record: the search itself goes on.
+            if let Ok(json) = to_json(&*file) {
+                let _ = write_atomic(&self.path, json.as_bytes());
+            }
+        }
+    }
+
+    fn should_stop(&self) -> bool {
+        use std::sync::atomic::Ordering;
+        INTERRUPTED.load(Ordering::SeqCst)
+            || self
+                .stop_after
+                .is_some_and(|n| self.new_branches.load(Ordering::SeqCst) >= n)
     }
 }
 
@@ -213,7 +312,7 @@ fn search_model(
         settings,
         (bound.baseline_power, bound.headroom()),
     )?;
-    let part = knobs.in_pool(|| searcher.run(Shard::WHOLE, observer))??;
+    let part = knobs.in_pool(|| searcher.run(Shard::WHOLE, observer, &search::NoCheckpoint))??;
     Ok(search::merge(vec![part])?)
 }
 
@@ -225,6 +324,12 @@ pub struct DesignRequest {
     pub knobs: SearchKnobs,
     /// `Some((i, N))`: score only shard i of N and write a part file.
     pub shard: Option<(usize, usize)>,
+    /// Keep finished branches in this file (and stop cleanly on Ctrl-C).
+    pub checkpoint: Option<PathBuf>,
+    /// Continue from the checkpoint file.
+    pub resume: bool,
+    /// Testing aid: behave as if interrupted after this many new branches.
+    pub stop_after: Option<usize>,
     pub format: Format,
     pub save_root: Option<PathBuf>,
 }
@@ -255,6 +360,42 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
         .settings(resolve_budget(&model, &request.budget)?)?;
     let bound = solve_bound(&model, &pairs)?;
     let bar = request.knobs.bar(&model);
+    if let Some(path) = &request.checkpoint {
+        if request.shard.is_some() {
+            return Err(Error::Usage("--checkpoint and --shard do not combine: shards are already resumable (rerun the missing ones)".into()));
+        }
+        let searcher = Searcher::new(
+            &model.network,
+            candidate_pairs(&model, &pairs, request.knobs.blind)?,
+            settings,
+            (bound.baseline_power, bound.headroom()),
+        )?;
+        let keeper = FileKeeper::open(path, &searcher, request.resume, request.stop_after)?;
+        let part = request
+            .knobs
+            .in_pool(|| searcher.run(Shard::WHOLE, &bar, &keeper))?
+            .map_err(|e| match Error::from(e) {
+                Error::Interrupted(why) => Error::Interrupted(format!(
+                    "{why}; they are kept in {} and `--resume` continues from there",
+                    path.display()
+                )),
+                other => other,
+            })?;
+        let outcome = search::merge(vec![part])?;
+        return design_output(
+            &model,
+            &pairs,
+            &bound,
+            &outcome,
+            request.format,
+            request.save_root.as_deref(),
+        );
+    }
+    if request.resume {
+        return Err(Error::Usage(
+            "--resume needs --checkpoint FILE: the file that the interrupted run wrote".into(),
+        ));
+    }
     let Some((index, count)) = request.shard else {
         let outcome = search_model(&model, &pairs, &bound, settings, &request.knobs, &bar)?;
         return design_output(
@@ -274,7 +415,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     )?;
     let part = request
         .knobs
-        .in_pool(|| searcher.run(Shard { index, count }, &bar))??;
+        .in_pool(|| searcher.run(Shard { index, count }, &bar, &search::NoCheckpoint))??;
     let file = PartFile {
         model: path.to_path_buf(),
         pairs: selection_of(&pairs),

@@ -191,6 +191,30 @@ impl Strategy {
     }
 }
 
+/// One finished branch: its counts and its best designs (what a checkpoint keeps).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BranchResult {
+    pub tally: BranchTally,
+    pub designs: Vec<Found>,
+}
+
+/// Keeps finished branches across an interruption. The search asks it which branches are
+/// already done, hands it every branch it finishes, and stops starting new branches once it
+/// says so (on Ctrl-C). Storage is the caller's business: the search does no I/O.
+pub trait Keeper: Sync {
+    fn finished(&self) -> Vec<BranchResult> {
+        Vec::new()
+    }
+    fn record(&self, _result: &BranchResult) {}
+    fn should_stop(&self) -> bool {
+        false
+    }
+}
+
+/// No checkpoint: nothing kept, never stops early.
+pub struct NoCheckpoint;
+impl Keeper for NoCheckpoint {}
+
 /// Reports progress of a long search (a terminal progress bar, or nothing).
 pub trait Observer: Sync {
     fn start(&self, _steps: u64, _what: &str) {}
@@ -211,6 +235,9 @@ pub enum SearchError {
     Settings(String),
     #[error("cannot merge: {0}")]
     Merge(String),
+    /// Stopped on request; `finished` of `total` branches are kept by the keeper.
+    #[error("interrupted after {finished} of {total} branches")]
+    Interrupted { finished: usize, total: usize },
 }
 
 /// `C(n, k)` as a float (exact below 2^53).
@@ -551,6 +578,15 @@ impl<'a> Searcher<'a> {
         self.relaxation(set).map_or(f64::INFINITY, |r| r.upper)
     }
 
+    /// What identifies this search: the network's fingerprint, the settings, the candidates.
+    pub fn identity(&self) -> (String, SearchSettings, Vec<Vec<(usize, usize)>>) {
+        (
+            fingerprint(self.network),
+            self.settings,
+            self.candidates.clone(),
+        )
+    }
+
     /// Upper bound on every design within the budget on any of the candidate pairs, whatever
     /// the number of pathways: the capped relaxation over all candidates.
     pub fn relaxation_all(&self) -> f64 {
@@ -559,7 +595,12 @@ impl<'a> Searcher<'a> {
     }
 
     /// Runs the search (or one shard of it) and returns its part, designs verified.
-    pub fn run(&self, shard: Shard, observer: &dyn Observer) -> Result<Part, SearchError> {
+    pub fn run(
+        &self,
+        shard: Shard,
+        observer: &dyn Observer,
+        keeper: &dyn Keeper,
+    ) -> Result<Part, SearchError> {
         if shard.count == 0 || shard.index >= shard.count {
             return Err(SearchError::Settings(format!(
                 "shard {}/{} does not exist: give i/N with 0 <= i < N",
@@ -586,7 +627,7 @@ impl<'a> Searcher<'a> {
             .expect("no threshold, so every set is scored");
         let single_scorings = scorings.load(Ordering::Relaxed) as u64;
         let (ranking, branches) = match strategy {
-            Strategy::Exhaustive => self.exhaustive(&singles, shard, observer),
+            Strategy::Exhaustive => self.exhaustive(&singles, shard, observer, keeper)?,
             Strategy::Beam => self.beam(&singles, observer),
         };
         let designs = ranking
@@ -621,8 +662,14 @@ impl<'a> Searcher<'a> {
         singles: &[Found],
         shard: Shard,
         observer: &dyn Observer,
-    ) -> (Ranking, Vec<BranchTally>) {
+        keeper: &dyn Keeper,
+    ) -> Result<(Ranking, Vec<BranchTally>), SearchError> {
         let top = self.settings.top;
+        let done: std::collections::HashMap<usize, BranchResult> = keeper
+            .finished()
+            .into_iter()
+            .map(|r| (r.tally.branch, r))
+            .collect();
         let mut order: Vec<usize> = (0..singles.len()).collect();
         order.sort_by(|&x, &y| singles[x].ranks_before(&singles[y]));
         let mut seed = Ranking::new(top);
@@ -635,9 +682,16 @@ impl<'a> Searcher<'a> {
             Vec::new()
         };
         observer.start(branch_ids.len() as u64, "branches");
-        let results: Vec<(BranchTally, Vec<Found>)> = branch_ids
+        let results: Vec<Option<BranchResult>> = branch_ids
             .par_iter()
             .map(|&b| {
+                if let Some(kept) = done.get(&b) {
+                    observer.advance(0, kept.designs.first().map_or(f64::NAN, |d| d.power));
+                    return Some(kept.clone());
+                }
+                if keeper.should_stop() {
+                    return None;
+                }
                 let mut ranking = Ranking {
                     top,
                     designs: seed.designs.clone(),
@@ -653,17 +707,29 @@ impl<'a> Searcher<'a> {
                 tally.scorings = scorings.load(Ordering::Relaxed) as u64;
                 let best = ranking.designs.first().map_or(f64::NAN, |d| d.power);
                 observer.advance(tally.scored, best);
-                (tally, ranking.designs)
+                let result = BranchResult {
+                    tally,
+                    designs: ranking.designs,
+                };
+                keeper.record(&result);
+                Some(result)
             })
             .collect();
         observer.finish();
+        let finished = results.iter().filter(|r| r.is_some()).count();
+        if finished < results.len() {
+            return Err(SearchError::Interrupted {
+                finished,
+                total: results.len(),
+            });
+        }
         let mut ranking = seed;
         let mut tallies = Vec::with_capacity(results.len());
-        for (tally, designs) in results {
-            designs.into_iter().for_each(|d| ranking.offer(d));
-            tallies.push(tally);
+        for result in results.into_iter().flatten() {
+            result.designs.into_iter().for_each(|d| ranking.offer(d));
+            tallies.push(result.tally);
         }
-        (ranking, tallies)
+        Ok((ranking, tallies))
     }
 
     /// Extends `path` (positions in `order`) by one pair at a time, depth first, skipping every

@@ -35,7 +35,7 @@ proptest! {
         let candidates = (0..n).flat_map(|a| (a + 1..n).map(move |c| vec![(a, c)])).collect();
         let budget = Budget { max_pathways: k, rate_cap: Some(10f64.powf(cap)), total_rate: None, work_limit: None };
         let searcher = Searcher::new(&net, candidates, SearchSettings { top: 5, ..SearchSettings::new(budget) }, (b.baseline_power, b.headroom())).unwrap();
-        let outcome = search::merge(vec![searcher.run(Shard::WHOLE, &Silent).unwrap()]).unwrap();
+        let outcome = search::merge(vec![searcher.run(Shard::WHOLE, &Silent, &search::NoCheckpoint).unwrap()]).unwrap();
         prop_assert!(!outcome.designs.is_empty());
         for d in &outcome.designs {
             let (power, roundoff) = d.verified.unwrap();

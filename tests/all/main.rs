@@ -12,4 +12,5 @@ mod invariants;
 mod published;
 mod reference;
 mod regimes;
+mod resume;
 mod steady_numerics;

@@ -11,11 +11,10 @@ fn ring(energies: &[f64], rates: &[f64], drive: f64, work: f64) -> String {
     for (i, e) in energies.iter().enumerate() {
         text += &format!("[[state]]\nname = \"s{i}\"\nenergy = {e}\n");
     }
-    for i in 0..n {
+    for (i, rate) in rates.iter().enumerate().take(n) {
         text += &format!(
-            "[[transition]]\nfrom = \"s{i}\"\nto = \"s{}\"\nforward = {:e}\ndrive = {drive}\nwork = {work}\n",
-            (i + 1) % n,
-            rates[i]
+            "[[transition]]\nfrom = \"s{i}\"\nto = \"s{}\"\nforward = {rate:e}\ndrive = {drive}\nwork = {work}\n",
+            (i + 1) % n
         );
     }
     text += &format!(

@@ -358,29 +358,44 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     let settings = request
         .knobs
         .settings(resolve_budget(&model, &request.budget)?)?;
+    if request.checkpoint.is_some() && request.shard.is_some() {
+        return Err(Error::Usage("--checkpoint and --shard do not combine: shards are already resumable (rerun the missing ones)".into()));
+    }
+    if request.resume && request.checkpoint.is_none() {
+        return Err(Error::Usage(
+            "--resume needs --checkpoint FILE: the file that the interrupted run wrote".into(),
+        ));
+    }
     let bound = solve_bound(&model, &pairs)?;
     let bar = request.knobs.bar(&model);
-    if let Some(path) = &request.checkpoint {
-        if request.shard.is_some() {
-            return Err(Error::Usage("--checkpoint and --shard do not combine: shards are already resumable (rerun the missing ones)".into()));
-        }
-        let searcher = Searcher::new(
-            &model.network,
-            candidate_pairs(&model, &pairs, request.knobs.blind)?,
-            settings,
-            (bound.baseline_power, bound.headroom()),
-        )?;
-        let keeper = FileKeeper::open(path, &searcher, request.resume, request.stop_after)?;
-        let part = request
+    let searcher = Searcher::new(
+        &model.network,
+        candidate_pairs(&model, &pairs, request.knobs.blind)?,
+        settings,
+        (bound.baseline_power, bound.headroom()),
+    )?;
+    let shard = request
+        .shard
+        .map_or(Shard::WHOLE, |(index, count)| Shard { index, count });
+    let part = match &request.checkpoint {
+        None => request
             .knobs
-            .in_pool(|| searcher.run(Shard::WHOLE, &bar, &keeper))?
-            .map_err(|e| match Error::from(e) {
-                Error::Interrupted(why) => Error::Interrupted(format!(
-                    "{why}; they are kept in {} and `--resume` continues from there",
-                    path.display()
-                )),
-                other => other,
-            })?;
+            .in_pool(|| searcher.run(shard, &bar, &search::NoCheckpoint))??,
+        Some(file) => {
+            let keeper = FileKeeper::open(file, &searcher, request.resume, request.stop_after)?;
+            request
+                .knobs
+                .in_pool(|| searcher.run(shard, &bar, &keeper))?
+                .map_err(|e| match Error::from(e) {
+                    Error::Interrupted(why) => Error::Interrupted(format!(
+                        "{why}; they are kept in {} and `--resume` continues from there",
+                        file.display()
+                    )),
+                    other => other,
+                })?
+        }
+    };
+    if shard == Shard::WHOLE {
         let outcome = search::merge(vec![part])?;
         return design_output(
             &model,
@@ -391,40 +406,24 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             request.save_root.as_deref(),
         );
     }
-    if request.resume {
-        return Err(Error::Usage(
-            "--resume needs --checkpoint FILE: the file that the interrupted run wrote".into(),
-        ));
-    }
-    let Some((index, count)) = request.shard else {
-        let outcome = search_model(&model, &pairs, &bound, settings, &request.knobs, &bar)?;
-        return design_output(
-            &model,
-            &pairs,
-            &bound,
-            &outcome,
-            request.format,
-            request.save_root.as_deref(),
-        );
-    };
-    let searcher = Searcher::new(
-        &model.network,
-        candidate_pairs(&model, &pairs, request.knobs.blind)?,
-        settings,
-        (bound.baseline_power, bound.headroom()),
-    )?;
-    let part = request
-        .knobs
-        .in_pool(|| searcher.run(Shard { index, count }, &bar, &search::NoCheckpoint))??;
+    write_part(path, &model, &pairs, part, request.save_root.as_deref())
+}
+
+/// Writes one shard's part file under `<root>/<model stem>/` and says how to merge the parts.
+fn write_part(
+    path: &Path,
+    model: &Model,
+    pairs: &PairSelection,
+    part: Part,
+    save_root: Option<&Path>,
+) -> Result<String, Error> {
+    let Shard { index, count } = part.shard;
     let file = PartFile {
         model: path.to_path_buf(),
-        pairs: selection_of(&pairs),
+        pairs: selection_of(pairs),
         part,
     };
-    let root = request
-        .save_root
-        .clone()
-        .unwrap_or_else(|| PathBuf::from("results"));
+    let root = save_root.map_or_else(|| PathBuf::from("results"), Path::to_path_buf);
     let out = root
         .join(model.stem())
         .join(format!("design-part-{index}-of-{count}.json"));

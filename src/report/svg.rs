@@ -97,6 +97,42 @@ fn escape(text: &str) -> String {
         .replace('>', "&gt;")
 }
 
+/// A new SVG document `height` tall with a white background and the title centred at `centre`.
+fn open(height: f64, centre: f64, title: &str) -> String {
+    let mut svg = String::new();
+    let _ = writeln!(
+        svg,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{height}" viewBox="0 0 {WIDTH} {height}" font-family="sans-serif" font-size="12">"#
+    );
+    let _ = writeln!(svg, r#"<rect width="100%" height="100%" fill="white"/>"#);
+    let _ = writeln!(
+        svg,
+        r#"<text x="{centre}" y="28" font-size="15" text-anchor="middle">{}</text>"#,
+        escape(title)
+    );
+    svg
+}
+
+/// Vertical grid lines with their labels below a plot area `plot_height` tall.
+fn vertical_grid(
+    svg: &mut String,
+    ticks: &[f64],
+    fx: &dyn Fn(f64) -> f64,
+    plot_height: f64,
+    log: bool,
+) {
+    for &t in ticks {
+        let x = fx(t);
+        let _ = writeln!(
+            svg,
+            r##"<line x1="{x:.1}" y1="{TOP}" x2="{x:.1}" y2="{:.1}" stroke="#e4e4e4"/><text x="{x:.1}" y="{:.1}" text-anchor="middle">{}</text>"##,
+            TOP + plot_height,
+            TOP + plot_height + 18.0,
+            label(t, log)
+        );
+    }
+}
+
 impl Chart {
     /// The chart as an SVG document. Points that cannot be drawn on a log axis are skipped.
     pub fn render(&self) -> String {
@@ -139,28 +175,8 @@ impl Chart {
             };
             TOP + (1.0 - t) * ph
         };
-        let mut svg = String::new();
-        let _ = writeln!(
-            svg,
-            r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{HEIGHT}" viewBox="0 0 {WIDTH} {HEIGHT}" font-family="sans-serif" font-size="12">"#
-        );
-        let _ = writeln!(svg, r#"<rect width="100%" height="100%" fill="white"/>"#);
-        let _ = writeln!(
-            svg,
-            r#"<text x="{}" y="28" font-size="15" text-anchor="middle">{}</text>"#,
-            LEFT + pw / 2.0,
-            escape(&self.title)
-        );
-        for &t in &xticks {
-            let x = fx(t);
-            let _ = writeln!(
-                svg,
-                r##"<line x1="{x:.1}" y1="{TOP}" x2="{x:.1}" y2="{:.1}" stroke="#e4e4e4"/><text x="{x:.1}" y="{:.1}" text-anchor="middle">{}</text>"##,
-                TOP + ph,
-                TOP + ph + 18.0,
-                label(t, self.log_x)
-            );
-        }
+        let mut svg = open(HEIGHT, LEFT + pw / 2.0, &self.title);
+        vertical_grid(&mut svg, &xticks, &fx, ph, self.log_x);
         for &t in &yticks {
             let y = fy(t);
             let _ = writeln!(
@@ -275,28 +291,8 @@ impl Bars {
         let ph = group_h * self.categories.len() as f64;
         let height = TOP + ph + BOTTOM;
         let fx = |x: f64| left + (x - xa) / (xb - xa) * pw;
-        let mut svg = String::new();
-        let _ = writeln!(
-            svg,
-            r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{height}" viewBox="0 0 {WIDTH} {height}" font-family="sans-serif" font-size="12">"#
-        );
-        let _ = writeln!(svg, r#"<rect width="100%" height="100%" fill="white"/>"#);
-        let _ = writeln!(
-            svg,
-            r#"<text x="{}" y="28" font-size="15" text-anchor="middle">{}</text>"#,
-            left + pw / 2.0,
-            escape(&self.title)
-        );
-        for &t in &ticks {
-            let x = fx(t);
-            let _ = writeln!(
-                svg,
-                r##"<line x1="{x:.1}" y1="{TOP}" x2="{x:.1}" y2="{:.1}" stroke="#e4e4e4"/><text x="{x:.1}" y="{:.1}" text-anchor="middle">{}</text>"##,
-                TOP + ph,
-                TOP + ph + 18.0,
-                label(t, false)
-            );
-        }
+        let mut svg = open(height, left + pw / 2.0, &self.title);
+        vertical_grid(&mut svg, &ticks, &fx, ph, false);
         for (g, category) in self.categories.iter().enumerate() {
             let y0 = TOP + g as f64 * group_h + 7.0;
             let _ = writeln!(

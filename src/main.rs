@@ -136,6 +136,15 @@ enum Command {
         /// Number of budget values (log-spaced for rates; every integer for max-pathways)
         #[arg(long, default_value_t = 13)]
         points: usize,
+        /// Keep finished budget points in FILE as the sweep goes; Ctrl-C then stops cleanly
+        #[arg(long, value_name = "FILE")]
+        checkpoint: Option<PathBuf>,
+        /// Continue an interrupted sweep from its --checkpoint FILE
+        #[arg(long, requires = "checkpoint")]
+        resume: bool,
+        /// Testing aid: stop as if interrupted after N new points
+        #[arg(long, hide = true)]
+        stop_after_points: Option<usize>,
         /// Where added pathways may act: `all` or pairs like A/B,C/D
         #[arg(long)]
         pairs: Option<String>,
@@ -456,6 +465,9 @@ fn main() -> ExitCode {
             model,
             over,
             points,
+            checkpoint,
+            resume,
+            stop_after_points,
             pairs,
             budget,
             search,
@@ -471,6 +483,9 @@ fn main() -> ExitCode {
                 points: *points,
                 format: format.format(),
                 save_root: save.root(),
+                checkpoint: checkpoint.clone(),
+                resume: *resume,
+                stop_after: *stop_after_points,
             },
         ),
         Command::Compare {

@@ -541,6 +541,60 @@ pub struct SweepRequest {
     pub points: usize,
     pub format: Format,
     pub save_root: Option<PathBuf>,
+    /// Keep finished budget points in this file (and stop cleanly on Ctrl-C).
+    pub checkpoint: Option<PathBuf>,
+    /// Continue from the checkpoint file.
+    pub resume: bool,
+    /// Testing aid: behave as if interrupted after this many new points.
+    pub stop_after: Option<usize>,
+}
+
+/// One finished budget point of a sweep (kT, internal units).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+struct SweepDone {
+    value: f64,
+    best: Option<search::Found>,
+    carried: bool,
+    evaluated: u64,
+    /// The capped relaxation when it was solved to full accuracy.
+    relaxation: Option<f64>,
+}
+
+/// A sweep's checkpoint: what identifies the sweep, and its finished points in order.
+#[derive(Debug, Serialize, Deserialize)]
+struct SweepCheckpoint {
+    identity: String,
+    done: Vec<SweepDone>,
+}
+
+/// Finished points of the sweep `identity` from `path` (empty unless resuming).
+fn sweep_progress(
+    path: Option<&Path>,
+    identity: &str,
+    resume: bool,
+) -> Result<Vec<SweepDone>, Error> {
+    let Some(path) = path.filter(|_| resume) else {
+        return Ok(Vec::new());
+    };
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::Usage(format!(
+            "--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh",
+            path.display()
+        ))
+    })?;
+    let kept: SweepCheckpoint = serde_json::from_str(&text).map_err(|e| {
+        Error::Usage(format!(
+            "--resume: {} is not a checkpoint written by `ergopath sweep --checkpoint` ({e})",
+            path.display()
+        ))
+    })?;
+    if kept.identity != identity {
+        return Err(Error::Usage(format!(
+            "--resume: {} belongs to another model or other sweep settings; give the same model and flags, or start afresh without --resume",
+            path.display()
+        )));
+    }
+    Ok(kept.done)
 }
 
 /// Parses `NAME=A..B` into the quantity and its values (log-spaced for rates and wide ranges,
@@ -614,11 +668,55 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         top: 1,
         ..request.knobs
     };
+    if request.resume && request.checkpoint.is_none() {
+        return Err(Error::Usage(
+            "--resume needs --checkpoint FILE: the file that the interrupted sweep wrote".into(),
+        ));
+    }
+    let identity = format!(
+        "{} {:?} {:?} {:?} {:?} {:?}",
+        search::fingerprint(&model.network),
+        values,
+        request.over,
+        request.budget,
+        (
+            knobs.starts,
+            knobs.seed,
+            knobs.exhaustive_limit,
+            knobs.beam_width,
+            knobs.blind
+        ),
+        pairs
+    );
+    let mut done = sweep_progress(request.checkpoint.as_deref(), &identity, request.resume)?;
+    if request.checkpoint.is_some() {
+        let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
+    }
     let bar = knobs.bar(&model);
     bar.start(values.len() as u64, "budget points");
-    let mut points: Vec<SweepPoint> = Vec::with_capacity(values.len());
     let mut best_so_far: Option<search::Found> = None;
-    for &value in &values {
+    let mut new_points = 0;
+    for (i, &value) in values.iter().enumerate() {
+        if let Some(kept) = done.get(i) {
+            best_so_far = kept.best.clone().or(best_so_far);
+            bar.advance(
+                kept.evaluated,
+                kept.best.as_ref().map_or(f64::NAN, |b| b.power),
+            );
+            continue;
+        }
+        if let Some(file) = &request.checkpoint {
+            let stop = INTERRUPTED.load(std::sync::atomic::Ordering::SeqCst)
+                || request.stop_after.is_some_and(|n| new_points >= n);
+            if stop {
+                bar.finish();
+                return Err(Error::Interrupted(format!(
+                    "interrupted: {i} of {} budget points finished; they are kept in {} and `--resume` continues from there",
+                    values.len(),
+                    file.display()
+                )));
+            }
+        }
         let budget = resolve_budget(&model, &with_value(request.budget, over, value))?;
         let settings = knobs.settings(budget)?;
         let outcome = search_model(&model, &pairs, &bound, settings, &knobs, &Silent)?;
@@ -645,17 +743,37 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
             outcome.evaluated,
             best.as_ref().map_or(f64::NAN, |b| b.power),
         );
-        points.push(SweepPoint::new(
-            &model,
-            &bound,
+        done.push(SweepDone {
             value,
-            best.as_ref(),
+            best,
             carried,
-            outcome.evaluated,
-            relaxation,
-        ));
+            evaluated: outcome.evaluated,
+            relaxation: relaxation.is_finite().then_some(relaxation),
+        });
+        new_points += 1;
+        if let Some(file) = &request.checkpoint {
+            let kept = SweepCheckpoint {
+                identity: identity.clone(),
+                done: done.clone(),
+            };
+            write_atomic(file, to_json(&kept)?.as_bytes())?;
+        }
     }
     bar.finish();
+    let points: Vec<SweepPoint> = done
+        .iter()
+        .map(|d| {
+            SweepPoint::new(
+                &model,
+                &bound,
+                d.value,
+                d.best.as_ref(),
+                d.carried,
+                d.evaluated,
+                d.relaxation.unwrap_or(f64::INFINITY),
+            )
+        })
+        .collect();
     let first = resolve_budget(&model, &with_value(request.budget, over, values[0]))?;
     let report = SweepReport::new(
         &model,

@@ -77,3 +77,41 @@ fn interrupted_search_resumes_to_the_same_ranking() {
         String::from_utf8_lossy(&other.stderr).contains("another model or other search settings")
     );
 }
+
+#[test]
+fn interrupted_sweep_resumes_to_the_same_table() {
+    let dir = scratch("resume-sweep");
+    let checkpoint = dir.join("sweep.checkpoint.json");
+    let checkpoint = checkpoint.to_str().unwrap();
+    let model = root().join("problems/walker.toml");
+    let model = model.to_str().unwrap();
+    let common = [
+        "sweep",
+        model,
+        "--over",
+        "rate-cap=1..1e4",
+        "--points",
+        "5",
+        "--json",
+        "-q",
+    ];
+    let whole = run(&common);
+    assert!(whole.status.success());
+    let stopped = run(&[
+        &common[..],
+        &["--checkpoint", checkpoint, "--stop-after-points", "2"],
+    ]
+    .concat());
+    assert_eq!(stopped.status.code(), Some(130));
+    assert!(String::from_utf8_lossy(&stopped.stderr).contains("2 of 5 budget points finished"));
+    let resumed = run(&[&common[..], &["--checkpoint", checkpoint, "--resume"]].concat());
+    assert!(
+        resumed.status.success(),
+        "{}",
+        String::from_utf8_lossy(&resumed.stderr)
+    );
+    assert_eq!(
+        String::from_utf8_lossy(&whole.stdout),
+        String::from_utf8_lossy(&resumed.stdout)
+    );
+}

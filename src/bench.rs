@@ -84,12 +84,30 @@ pub fn median_seconds<T>(runs: usize, mut f: impl FnMut() -> T) -> (f64, T) {
     (times[times.len() / 2], last.expect("at least one run"))
 }
 
+/// Resets the process's peak resident memory (Linux: `clear_refs` value 5), so that the next
+/// [`peak_mb`] reports the peak of what follows. Elsewhere it does nothing.
+fn reset_peak() {
+    let _ = std::fs::write("/proc/self/clear_refs", "5");
+}
+
+/// Peak resident memory since the last [`reset_peak`], in MB (Linux `VmHWM`); `None` where the
+/// system does not report it. The reset starts from the memory the process holds at that
+/// moment (the allocator keeps some from earlier rows), so small rows show that floor.
+fn peak_mb() -> Option<f64> {
+    let status = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
+    let kb: f64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kb / 1024.0)
+}
+
 /// One row of the steady-state benchmark.
 #[derive(Debug, Clone)]
 pub struct SteadyTiming {
     pub family: Family,
     pub states: usize,
     pub seconds: f64,
+    /// Peak resident memory of the process during these runs (MB), where known.
+    pub peak_mb: Option<f64>,
     pub method: &'static str,
     pub relative_residual: f64,
 }
@@ -120,6 +138,7 @@ pub fn time_steady(
 ) -> Result<Vec<SteadyTiming>, SolveError> {
     let mut rows = Vec::new();
     for (family, n, net) in networks(sizes, families) {
+        reset_peak();
         let (seconds, result) =
             median_seconds(runs, || steady::solve(&net, &SteadySettings::default()));
         let state = result?;
@@ -127,6 +146,7 @@ pub fn time_steady(
             family,
             states: n,
             seconds,
+            peak_mb: peak_mb(),
             method: state.method.name(),
             relative_residual: state.relative_residual,
         });
@@ -143,6 +163,11 @@ pub struct BoundTiming {
     pub seconds: f64,
     pub relative_gap: f64,
     pub headroom: f64,
+    /// Peak resident memory of the process during these runs (MB), where known.
+    pub peak_mb: Option<f64>,
+    /// The attaining tree design at 99% of the headroom with its speed table and its
+    /// verification by a steady-state solve (timed once, after the bound; Newton rows only).
+    pub design_seconds: Option<f64>,
 }
 
 /// Times the certified bound (all pairs) by each route: Newton alone from the baseline steady
@@ -168,9 +193,20 @@ pub fn time_bound(
                 conic_limit: usize::MAX,
                 ..Default::default()
             };
+            reset_peak();
             let (seconds, result) =
                 median_seconds(runs, || bound::solve(&net, &PairSelection::All, &settings));
             let b = result?;
+            let design_seconds = if newton_only {
+                let fractions = crate::commands::SPEED_TABLE_FRACTIONS;
+                let (s, attained) = median_seconds(1, || {
+                    crate::bound::design::attaining(&net, &b, &PairSelection::All, 0.99, &fractions)
+                });
+                attained?;
+                Some(s)
+            } else {
+                None
+            };
             rows.push(BoundTiming {
                 family,
                 states: n,
@@ -182,6 +218,8 @@ pub fn time_bound(
                 seconds,
                 relative_gap: b.relative_gap(),
                 headroom: b.headroom(),
+                peak_mb: peak_mb(),
+                design_seconds,
             });
         }
     }

@@ -19,6 +19,11 @@ fn tabulate(
     (table.render(), csv)
 }
 
+/// Peak memory in MB for a table cell (`-` where unknown).
+fn megabytes(mb: Option<f64>) -> String {
+    mb.map_or("-".into(), |m| format!("{m:.0}"))
+}
+
 /// Design-search timing as (text table, CSV).
 pub fn design_tables(r: &DesignTiming) -> (String, String) {
     let per_second = |x: u64| x as f64 / r.seconds.max(1e-12);
@@ -74,14 +79,16 @@ pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
                 format!("{:.4}", r.seconds),
                 r.method.into(),
                 format!("{:.1e}", r.relative_residual),
+                megabytes(r.peak_mb),
             ];
             let line = format!(
-                "{},{},{:e},{},{:e}",
+                "{},{},{:e},{},{:e},{}",
                 r.family.name(),
                 r.states,
                 r.seconds,
                 r.method,
-                r.relative_residual
+                r.relative_residual,
+                r.peak_mb.map_or(String::new(), |m| format!("{m:.1}"))
             );
             (cells, line)
         })
@@ -92,10 +99,11 @@ pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
         ("median s", Align::Right),
         ("method", Align::Left),
         ("residual", Align::Right),
+        ("peak MB", Align::Right),
     ];
     tabulate(
         &columns,
-        "family,states,median_seconds,method,relative_residual",
+        "family,states,median_seconds,method,relative_residual,peak_mb",
         &rows,
     )
 }
@@ -111,15 +119,19 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
                 r.route.into(),
                 format!("{:.4}", r.seconds),
                 format!("{:.1e}", r.relative_gap),
+                r.design_seconds.map_or("-".into(), |s| format!("{s:.4}")),
+                megabytes(r.peak_mb),
             ];
             let line = format!(
-                "{},{},{},{:e},{:e},{:e}",
+                "{},{},{},{:e},{:e},{:e},{},{}",
                 r.family.name(),
                 r.states,
                 r.route,
                 r.seconds,
                 r.relative_gap,
-                r.headroom
+                r.headroom,
+                r.design_seconds.map_or(String::new(), |s| format!("{s:e}")),
+                r.peak_mb.map_or(String::new(), |m| format!("{m:.1}"))
             );
             (cells, line)
         })
@@ -130,10 +142,12 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
         ("route", Align::Left),
         ("median s", Align::Right),
         ("rel. gap", Align::Right),
+        ("design+verify s", Align::Right),
+        ("peak MB", Align::Right),
     ];
     tabulate(
         &columns,
-        "family,states,route,median_seconds,relative_gap,headroom_kT",
+        "family,states,route,median_seconds,relative_gap,headroom_kT,design_seconds,peak_mb",
         &rows,
     )
 }

@@ -25,27 +25,7 @@ impl Family {
     }
 }
 
-/// A small deterministic generator (SplitMix64), so benchmark networks are identical everywhere.
-pub struct SplitMix(u64);
-
-impl SplitMix {
-    pub fn new(seed: u64) -> Self {
-        Self(seed)
-    }
-
-    pub fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9e3779b97f4a7c15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58476d1ce4e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d049bb133111eb);
-        z ^ (z >> 31)
-    }
-
-    /// Uniform in [0, 1).
-    pub fn uniform(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
-    }
-}
+pub use crate::rng::SplitMix;
 
 /// A seeded network of `n` states and 2n channels: a ring, plus one chord per state. Energies
 /// are uniform in +-2 kT, rates log-uniform in 0.1..10, every ring step stores 0.2 kT of work and

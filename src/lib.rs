@@ -11,6 +11,7 @@ pub mod linalg;
 pub mod model;
 pub mod progress;
 pub mod report;
+pub mod rng;
 pub mod search;
 pub mod steady;
 pub mod units;

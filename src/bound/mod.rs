@@ -2,8 +2,9 @@
 //! designs that attain it (theory note, sections 3 to 5).
 //!
 //! Owns: the routability constraints of a pair restriction, the solve of `Phi* = max Phi(p)`
-//! (Clarabel's exponential-cone program polished by log-domain Newton, with Newton from the
-//! baseline steady state as a second start), the certified upper value, the benefit/cost split,
+//! (log-domain Newton from the baseline steady state, with Clarabel's exponential-cone program
+//! polished by Newton as the fallback when that is not tight), the certified upper value and
+//! its acceptance limit, the benefit/cost split,
 //! and (in [`design`]) the attaining tree design, its speed table and the rate-capped design.
 //! All quantities are in kT and the model's time unit. No I/O, no printing.
 
@@ -34,9 +35,9 @@ pub struct BoundSettings {
     /// Start with the conic program (then Newton from the baseline if that is not tight);
     /// by default Newton runs first and the conic program only when Newton is not tight.
     pub conic_first: bool,
-    /// Largest network given to the conic solver first. Default 3000: measured on 2 cores, the
-    /// conic start costs about 1 s at 3000 banded states but more than 6 minutes at 10^4,
-    /// where Newton alone certifies in 7 s.
+    /// Largest network given to the conic solver (fallback or cross-check). Default 3000:
+    /// measured on 2 cores, the conic program costs about 1 s at 3000 banded states but more
+    /// than 6 minutes at 10^4, where Newton alone certifies in 2 s.
     pub conic_limit: usize,
 }
 

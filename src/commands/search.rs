@@ -67,20 +67,12 @@ impl FileKeeper {
             finished: Vec::new(),
         };
         if resume {
-            let text = std::fs::read_to_string(path).map_err(|e| {
-                Error::Usage(format!("--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh", path.display()))
-            })?;
-            let kept: CheckpointFile = serde_json::from_str(&text).map_err(|e| {
-                Error::Usage(format!("--resume: {} is not a checkpoint written by `ergopath design --checkpoint` ({e})", path.display()))
-            })?;
+            let kept: CheckpointFile = read_checkpoint(path, "design")?;
             if kept.fingerprint != file.fingerprint
                 || kept.settings != file.settings
                 || kept.candidates != file.candidates
             {
-                return Err(Error::Usage(format!(
-                    "--resume: {} belongs to another model or other search settings; give the same model and flags, or start afresh without --resume",
-                    path.display()
-                )));
+                return Err(foreign_checkpoint(path));
             }
             file.finished = kept.finished;
         }
@@ -299,21 +291,52 @@ fn solve_bound(model: &Model, pairs: &PairSelection) -> Result<Bound, Error> {
 
 /// Runs one whole search on a loaded model.
 fn search_model(
-    model: &Model,
-    pairs: &PairSelection,
-    bound: &Bound,
-    settings: SearchSettings,
+    searcher: &Searcher,
     knobs: &SearchKnobs,
     observer: &dyn Observer,
 ) -> Result<Outcome, Error> {
-    let searcher = Searcher::new(
-        &model.network,
-        candidate_pairs(model, pairs, knobs.blind)?,
-        settings,
-        (bound.baseline_power, bound.headroom()),
-    )?;
     let part = knobs.in_pool(|| searcher.run(Shard::WHOLE, observer, &search::NoCheckpoint))??;
     Ok(search::merge(vec![part])?)
+}
+
+/// The searcher of a model's candidates (environment-blind when asked) under `settings`.
+fn searcher_for<'a>(
+    model: &'a Model,
+    pairs: &PairSelection,
+    bound: &Bound,
+    settings: SearchSettings,
+    blind: bool,
+) -> Result<Searcher<'a>, Error> {
+    Ok(Searcher::new(
+        &model.network,
+        candidate_pairs(model, pairs, blind)?,
+        settings,
+        (bound.baseline_power, bound.headroom()),
+    )?)
+}
+
+/// Reads a checkpoint written by `command --checkpoint`, for `--resume`.
+fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -> Result<T, Error> {
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::Usage(format!(
+            "--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh",
+            path.display()
+        ))
+    })?;
+    serde_json::from_str(&text).map_err(|e| {
+        Error::Usage(format!(
+            "--resume: {} is not a checkpoint written by `ergopath {command} --checkpoint` ({e})",
+            path.display()
+        ))
+    })
+}
+
+/// The refusal of a checkpoint that belongs to another search.
+fn foreign_checkpoint(path: &Path) -> Error {
+    Error::Usage(format!(
+        "--resume: {} belongs to another model or other search settings; give the same model and flags, or start afresh without --resume",
+        path.display()
+    ))
 }
 
 /// Settings of `ergopath design`.
@@ -368,12 +391,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     }
     let bound = solve_bound(&model, &pairs)?;
     let bar = request.knobs.bar(&model);
-    let searcher = Searcher::new(
-        &model.network,
-        candidate_pairs(&model, &pairs, request.knobs.blind)?,
-        settings,
-        (bound.baseline_power, bound.headroom()),
-    )?;
+    let searcher = searcher_for(&model, &pairs, &bound, settings, request.knobs.blind)?;
     let shard = request
         .shard
         .map_or(Shard::WHOLE, |(index, count)| Shard { index, count });
@@ -576,23 +594,9 @@ fn sweep_progress(
     let Some(path) = path.filter(|_| resume) else {
         return Ok(Vec::new());
     };
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        Error::Usage(format!(
-            "--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh",
-            path.display()
-        ))
-    })?;
-    let kept: SweepCheckpoint = serde_json::from_str(&text).map_err(|e| {
-        Error::Usage(format!(
-            "--resume: {} is not a checkpoint written by `ergopath sweep --checkpoint` ({e})",
-            path.display()
-        ))
-    })?;
+    let kept: SweepCheckpoint = read_checkpoint(path, "sweep")?;
     if kept.identity != identity {
-        return Err(Error::Usage(format!(
-            "--resume: {} belongs to another model or other sweep settings; give the same model and flags, or start afresh without --resume",
-            path.display()
-        )));
+        return Err(foreign_checkpoint(path));
     }
     Ok(kept.done)
 }
@@ -719,7 +723,9 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         }
         let budget = resolve_budget(&model, &with_value(request.budget, over, value))?;
         let settings = knobs.settings(budget)?;
-        let outcome = search_model(&model, &pairs, &bound, settings, &knobs, &Silent)?;
+        // One searcher per budget value: its search and the relaxation at that budget.
+        let searcher = searcher_for(&model, &pairs, &bound, settings, knobs.blind)?;
+        let outcome = search_model(&searcher, &knobs, &Silent)?;
         // A design that met a tighter budget meets this one too, so the best never falls.
         let mut best = outcome.designs.first().cloned();
         let carried = match (&best, &best_so_far) {
@@ -732,13 +738,7 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         if let Some(b) = &best {
             best_so_far = Some(b.clone());
         }
-        let relaxation = Searcher::new(
-            &model.network,
-            candidate_pairs(&model, &pairs, knobs.blind)?,
-            settings,
-            (bound.baseline_power, bound.headroom()),
-        )?
-        .relaxation_all();
+        let relaxation = searcher.relaxation_all();
         bar.advance(
             outcome.evaluated,
             best.as_ref().map_or(f64::NAN, |b| b.power),
@@ -829,7 +829,8 @@ pub fn compare(paths: &[PathBuf], request: &CompareRequest) -> Result<String, Er
         let budget = resolve_budget(model, &request.budget)?;
         let best = if budget.relaxed_cap().is_some() {
             let settings = knobs.settings(budget)?;
-            let outcome = search_model(model, &pairs, &bound, settings, &knobs, &knobs.bar(model))?;
+            let searcher = searcher_for(model, &pairs, &bound, settings, knobs.blind)?;
+            let outcome = search_model(&searcher, &knobs, &knobs.bar(model))?;
             outcome.designs.first().map(|d| (d.clone(), budget))
         } else {
             None

@@ -19,6 +19,11 @@ fn tabulate(
     (table.render(), csv)
 }
 
+/// Peak memory in MB for a CSV field (empty where unknown).
+fn csv_megabytes(mb: Option<f64>) -> String {
+    mb.map_or(String::new(), |m| format!("{m:.1}"))
+}
+
 /// Peak memory in MB for a table cell (`-` where unknown).
 fn megabytes(mb: Option<f64>) -> String {
     mb.map_or("-".into(), |m| format!("{m:.0}"))
@@ -88,7 +93,7 @@ pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
                 r.seconds,
                 r.method,
                 r.relative_residual,
-                r.peak_mb.map_or(String::new(), |m| format!("{m:.1}"))
+                csv_megabytes(r.peak_mb)
             );
             (cells, line)
         })
@@ -131,7 +136,7 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
                 r.relative_gap,
                 r.headroom,
                 r.design_seconds.map_or(String::new(), |s| format!("{s:e}")),
-                r.peak_mb.map_or(String::new(), |m| format!("{m:.1}"))
+                csv_megabytes(r.peak_mb)
             );
             (cells, line)
         })

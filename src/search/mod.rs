@@ -346,9 +346,9 @@ impl<'a> Searcher<'a> {
 
     /// Deterministic seed of a set: the same set gets the same starts in every run and shard.
     fn seed_of(&self, set: &[usize]) -> u64 {
-        let mut rng = crate::bench::SplitMix::new(self.settings.seed);
+        let mut rng = crate::rng::SplitMix::new(self.settings.seed);
         for &i in set {
-            rng = crate::bench::SplitMix::new(rng.next_u64() ^ (i as u64 + 1));
+            rng = crate::rng::SplitMix::new(rng.next_u64() ^ (i as u64 + 1));
         }
         rng.next_u64()
     }
@@ -377,7 +377,7 @@ impl<'a> Searcher<'a> {
                 return starts;
             }
         }
-        let mut rng = crate::bench::SplitMix::new(self.seed_of(set));
+        let mut rng = crate::rng::SplitMix::new(self.seed_of(set));
         for _ in 0..self.settings.starts {
             let rates: Vec<(f64, f64)> = set
                 .iter()

@@ -148,6 +148,11 @@ pub struct BoundTiming {
     /// The attaining tree design at 99% of the headroom with its speed table and its
     /// verification by a steady-state solve (timed once, after the bound; Newton rows only).
     pub design_seconds: Option<f64>,
+    /// Newton steps of the solve.
+    pub newton_steps: usize,
+    /// One steady-state solve (sparse LU) of the same network, median of the same runs: the
+    /// unit in which the bound's cost is judged.
+    pub steady_seconds: f64,
 }
 
 /// Times the certified bound (all pairs) by each route: Newton alone from the baseline steady
@@ -162,6 +167,9 @@ pub fn time_bound(
     use crate::model::PairSelection;
     let mut rows = Vec::new();
     for (family, n, net) in networks(sizes, families) {
+        let (steady_seconds, steady) =
+            median_seconds(runs, || steady::solve(&net, &SteadySettings::default()));
+        steady?;
         for newton_only in [true, false] {
             if !newton_only && n > conic_limit {
                 continue;
@@ -200,6 +208,8 @@ pub fn time_bound(
                 headroom: b.headroom(),
                 peak_mb: peak_mb(),
                 design_seconds,
+                newton_steps: b.newton_steps,
+                steady_seconds,
             });
         }
     }

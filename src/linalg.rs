@@ -1,6 +1,7 @@
 //! Sparse LU factorisation (faer) behind a small interface: factor once, solve many times.
 //!
-//! Owns the choice of factorisation parameters. Nothing here knows about networks.
+//! Owns the choice of factorisation parameters and the reuse of a symbolic analysis across
+//! matrices of one sparsity pattern. Nothing here knows about networks.
 
 use crate::steady::SolveError;
 use faer::dyn_stack::{MemBuffer, MemStack};
@@ -25,6 +26,43 @@ pub struct SparseLu {
     numeric: NumericLu<usize, f64>,
 }
 
+/// The symbolic analysis (fill-reducing ordering, elimination structure) of the last pattern
+/// factored through it. Newton's method factors one pattern many times; the ordering is paid
+/// for once and only the numeric factorisation is repeated.
+#[derive(Default)]
+pub struct SymbolicReuse {
+    last: Option<(Vec<usize>, Vec<usize>, SymbolicLu<usize>)>,
+    /// How many symbolic analyses were computed (for tests and benchmarks).
+    pub analyses: usize,
+}
+
+impl SymbolicReuse {
+    /// The analysis of `matrix`'s pattern: the kept one if the pattern is the same.
+    fn analysis(
+        &mut self,
+        matrix: &SparseColMat<usize, f64>,
+    ) -> Result<SymbolicLu<usize>, SolveError> {
+        let pattern = matrix.symbolic();
+        if let Some((columns, rows, symbolic)) = &self.last {
+            if columns == pattern.col_ptr() && rows == pattern.row_idx() {
+                return Ok(symbolic.clone());
+            }
+        }
+        let params = LuSymbolicParams {
+            supernodal_flop_ratio_threshold: SUPERNODAL_THRESHOLD,
+            ..Default::default()
+        };
+        let symbolic = factorize_symbolic_lu(pattern, params).map_err(failed)?;
+        self.analyses += 1;
+        self.last = Some((
+            pattern.col_ptr().to_vec(),
+            pattern.row_idx().to_vec(),
+            symbolic.clone(),
+        ));
+        Ok(symbolic)
+    }
+}
+
 fn failed(e: impl std::fmt::Debug) -> SolveError {
     SolveError::Factorisation(format!("{e:?}"))
 }
@@ -32,13 +70,19 @@ fn failed(e: impl std::fmt::Debug) -> SolveError {
 impl SparseLu {
     /// Factors the `n x n` matrix given by triplets (duplicates are summed).
     pub fn factor(n: usize, triplets: &[Triplet<usize, usize, f64>]) -> Result<Self, SolveError> {
+        Self::factor_reusing(n, triplets, &mut SymbolicReuse::default())
+    }
+
+    /// [`SparseLu::factor`], taking the symbolic analysis from `reuse` when the pattern is
+    /// the one factored last (and keeping this one's otherwise).
+    pub fn factor_reusing(
+        n: usize,
+        triplets: &[Triplet<usize, usize, f64>],
+        reuse: &mut SymbolicReuse,
+    ) -> Result<Self, SolveError> {
         let matrix =
             SparseColMat::<usize, f64>::try_new_from_triplets(n, n, triplets).map_err(failed)?;
-        let params = LuSymbolicParams {
-            supernodal_flop_ratio_threshold: SUPERNODAL_THRESHOLD,
-            ..Default::default()
-        };
-        let symbolic = factorize_symbolic_lu(matrix.symbolic(), params).map_err(failed)?;
+        let symbolic = reuse.analysis(&matrix)?;
         let mut numeric = NumericLu::new();
         let par = Par::Seq;
         let mut work = MemBuffer::try_new(

@@ -71,6 +71,9 @@ pub struct Bound {
     pub maintenance: f64,
     /// How the maximiser was found (for reports).
     pub route: &'static str,
+    /// Newton steps of the final solve, and the symbolic analyses they needed.
+    pub newton_steps: usize,
+    pub symbolic_analyses: usize,
 }
 
 impl Bound {
@@ -218,5 +221,7 @@ pub fn solve(
         p: certified.p,
         log_p: certified.log_p,
         route,
+        newton_steps: certified.steps,
+        symbolic_analyses: certified.analyses,
     })
 }

@@ -16,6 +16,13 @@ pub struct Jump {
     pub rate: f64,
 }
 
+/// The gradient of `Phi` in two parts (see [`Objective::gradient_parts`]).
+#[derive(Debug, Clone)]
+pub struct GradientParts {
+    pub rest: Vec<f64>,
+    pub log_inflow: Vec<f64>,
+}
+
 /// The data of `Phi` for one network.
 #[derive(Debug, Clone)]
 pub struct Objective {
@@ -111,17 +118,39 @@ impl Objective {
     /// Gradient `g_k = a_k + sum_i R_ik phi_i + (R p)_k / p_k`, with
     /// `(R p)_k / p_k = sum_j r_kj exp(ln p_j - ln p_k) - exit_k` computed from logs.
     pub fn gradient(&self, log_p: &[f64]) -> Vec<f64> {
+        let parts = self.gradient_parts(log_p);
+        parts
+            .rest
+            .iter()
+            .zip(&parts.log_inflow)
+            .map(|(r, q)| r + q.exp())
+            .collect()
+    }
+
+    /// The gradient split as `g_k = rest_k + exp(log_inflow_k)`: the inflow term
+    /// `(sum_j r_kj p_j) / p_k`, which grows without limit as `p_k -> 0`, kept as a logarithm
+    /// (`-inf` for a state nothing jumps into), and the rest, linear in `ln p`.
+    pub fn gradient_parts(&self, log_p: &[f64]) -> GradientParts {
         let phi: Vec<f64> = (0..self.n)
             .map(|i| log_p[i] - self.log_equilibrium[i])
             .collect();
-        let mut g: Vec<f64> = (0..self.n)
+        let mut rest: Vec<f64> = (0..self.n)
             .map(|k| self.work_gradient[k] - self.exit[k] * (phi[k] + 1.0))
             .collect();
         for j in &self.jumps {
-            g[j.source] += j.rate * phi[j.target];
-            g[j.target] += j.rate * (log_p[j.source] - log_p[j.target]).exp();
+            rest[j.source] += j.rate * phi[j.target];
         }
-        g
+        let inflow_log = |j: &Jump| j.rate.ln() + log_p[j.source] - log_p[j.target];
+        let mut top = vec![f64::NEG_INFINITY; self.n];
+        for j in &self.jumps {
+            top[j.target] = top[j.target].max(inflow_log(j));
+        }
+        let mut sum = vec![0.0; self.n];
+        for j in &self.jumps {
+            sum[j.target] += (inflow_log(j) - top[j.target]).exp();
+        }
+        let log_inflow = top.iter().zip(&sum).map(|(t, s)| t + s.ln()).collect();
+        GradientParts { rest, log_inflow }
     }
 
     /// Entries of the scaled Hessian `M = D H D` (`D = diag p`), as (row, column, value)

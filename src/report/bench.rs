@@ -123,16 +123,20 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
                 r.states.to_string(),
                 r.route.into(),
                 format!("{:.4}", r.seconds),
+                format!("{:.0}", r.seconds / r.steady_seconds),
+                r.newton_steps.to_string(),
                 format!("{:.1e}", r.relative_gap),
                 r.design_seconds.map_or("-".into(), |s| format!("{s:.4}")),
                 megabytes(r.peak_mb),
             ];
             let line = format!(
-                "{},{},{},{:e},{:e},{:e},{},{}",
+                "{},{},{},{:e},{:e},{},{:e},{:e},{},{}",
                 r.family.name(),
                 r.states,
                 r.route,
                 r.seconds,
+                r.steady_seconds,
+                r.newton_steps,
                 r.relative_gap,
                 r.headroom,
                 r.design_seconds.map_or(String::new(), |s| format!("{s:e}")),
@@ -146,13 +150,15 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
         ("states", Align::Right),
         ("route", Align::Left),
         ("median s", Align::Right),
+        ("x steady", Align::Right),
+        ("Newton steps", Align::Right),
         ("rel. gap", Align::Right),
         ("design+verify s", Align::Right),
         ("peak MB", Align::Right),
     ];
     tabulate(
         &columns,
-        "family,states,route,median_seconds,relative_gap,headroom_kT,design_seconds,peak_mb",
+        "family,states,route,median_seconds,steady_seconds,newton_steps,relative_gap,headroom_kT,design_seconds,peak_mb",
         &rows,
     )
 }

@@ -10,7 +10,7 @@
 //! Vandenberghe, *Convex Optimization* (2004), section 10.2 (Newton's method with equality
 //! constraints).
 
-use super::objective::Objective;
+use super::objective::{GradientParts, Objective};
 use crate::linalg::{SparseLu, SymbolicReuse};
 use crate::steady::SolveError;
 use faer::sparse::Triplet;
@@ -104,7 +104,13 @@ pub fn certificate(
     p: &[f64],
     mu: &[f64],
 ) -> f64 {
-    let mut h = objective.gradient(log_p);
+    let g = objective.gradient(log_p);
+    certificate_from(constraints, &g, p, objective.value(p, log_p), mu)
+}
+
+/// [`certificate`] from the gradient `g` and value at `p`.
+fn certificate_from(constraints: &Constraints, g: &[f64], p: &[f64], value: f64, mu: &[f64]) -> f64 {
+    let mut h = g.to_vec();
     for (row, m) in constraints.rows.iter().zip(mu) {
         for &(k, a) in row {
             h[k] += a * m;
@@ -118,7 +124,52 @@ pub fn certificate(
         .zip(mu)
         .map(|(r, m)| r * m)
         .sum();
-    objective.value(p, log_p) + (top - mean).max(0.0) + infeasibility
+    value + (top - mean).max(0.0) + infeasibility
+}
+
+/// An iterate: normalised `ln p`, `p`, `Phi(p)` and the gradient there (computed once per
+/// point: the step, the certificate and the lift all use it).
+struct Point {
+    log_p: Vec<f64>,
+    p: Vec<f64>,
+    value: f64,
+    parts: GradientParts,
+    g: Vec<f64>,
+}
+
+impl Point {
+    /// The point `log_p` (any normalisation), or `None` if `Phi` is not finite there.
+    fn new(objective: &Objective, mut log_p: Vec<f64>) -> Option<Self> {
+        normalise_logs(&mut log_p);
+        let p: Vec<f64> = log_p.iter().map(|l| l.exp()).collect();
+        let value = objective.value(&p, &log_p);
+        if !value.is_finite() {
+            return None;
+        }
+        let parts = objective.gradient_parts(&log_p);
+        let g = parts.gradient();
+        Some(Self {
+            log_p,
+            p,
+            value,
+            parts,
+            g,
+        })
+    }
+
+    /// Round-off of `Phi` here ([`Objective::value_roundoff`]).
+    fn noise(&self, objective: &Objective) -> f64 {
+        objective.value_roundoff(&self.p, &self.log_p)
+    }
+
+    /// `Phi` here, without the gradient (for line-search trials).
+    fn value_at(objective: &Objective, log_p: &[f64]) -> (f64, f64) {
+        let p: Vec<f64> = log_p.iter().map(|l| l.exp()).collect();
+        (
+            objective.value(&p, log_p),
+            objective.value_roundoff(&p, log_p),
+        )
+    }
 }
 
 /// Maximises `Phi` from the interior start `log_p` (any normalisation). It cannot fail: a
@@ -129,12 +180,12 @@ pub fn maximise(
     start: &[f64],
     settings: &NewtonSettings,
 ) -> Certified {
-    let mut log_p = start.to_vec();
-    normalise_logs(&mut log_p);
-    let mut p: Vec<f64> = log_p.iter().map(|l| l.exp()).collect();
-    let mut value = objective.value(&p, &log_p);
+    let mut x = Point::new(objective, start.to_vec()).unwrap_or_else(|| {
+        // A start where Phi is not finite: the uniform distribution always is.
+        Point::new(objective, vec![0.0; objective.n]).expect("Phi is finite at the uniform law")
+    });
     let mut mu = vec![0.0; constraints.rows.len()];
-    let mut best_upper = certificate(objective, constraints, &log_p, &p, &mu);
+    let mut best_upper = certificate_from(constraints, &x.g, &x.p, x.value, &mu);
     let scale = objective.exit.iter().copied().fold(0.0, f64::max);
     let mut iterations = 0;
     let mut last_progress = 0;
@@ -142,9 +193,10 @@ pub fn maximise(
     // Once a plain step has been wild, damped steps follow until they move less than the
     // damping allows (each wild plain step costs a factorisation for nothing).
     let mut damped = false;
+    let mut previous_upper = best_upper;
     while iterations < settings.max_iterations {
-        let floor = 16.0 * objective.value_roundoff(&p, &log_p) + 1e-15 * scale;
-        if best_upper - value <= settings.relative_gap * value.abs() + floor {
+        let floor = 16.0 * x.noise(objective) + 1e-15 * scale;
+        if best_upper - x.value <= settings.relative_gap * x.value.abs() + floor {
             break;
         }
         iterations += 1;
@@ -153,13 +205,12 @@ pub fn maximise(
         // A singular system (possible once the iterate is at working precision) ends the
         // polish at the best certified point so far.
         let Ok((mut du, mut new_mu)) =
-            newton_step(objective, constraints, &p, &log_p, damped, &mut analyses)
+            newton_step(objective, constraints, &x, damped, &mut analyses)
         else {
             break;
         };
         if !damped && du.iter().any(|d| d.abs() > WILD_STEP) {
-            let Ok(step) = newton_step(objective, constraints, &p, &log_p, true, &mut analyses)
-            else {
+            let Ok(step) = newton_step(objective, constraints, &x, true, &mut analyses) else {
                 break;
             };
             (du, new_mu) = step;
@@ -169,44 +220,28 @@ pub fn maximise(
         if damped && largest < DAMPED_EXIT / DAMPING {
             damped = false;
         }
-        let upper = certificate(objective, constraints, &log_p, &p, &new_mu);
-        if upper < best_upper {
-            best_upper = upper;
-        }
+        best_upper = best_upper.min(certificate_from(constraints, &x.g, &x.p, x.value, &new_mu));
         mu = new_mu;
-        // Backtracking: the largest step in 1, 1/2, 1/4, ... that does not decrease Phi.
-        let mut alpha: f64 = if largest > STEP_CAP {
-            STEP_CAP / largest
-        } else {
-            1.0
-        };
-        let mut accepted = false;
-        for _ in 0..60 {
-            let mut trial: Vec<f64> = log_p.iter().zip(&du).map(|(l, d)| l + alpha * d).collect();
-            normalise_logs(&mut trial);
-            let trial_p: Vec<f64> = trial.iter().map(|l| l.exp()).collect();
-            let trial_value = objective.value(&trial_p, &trial);
-            let noise = 4.0 * objective.value_roundoff(&trial_p, &trial);
-            if trial_value.is_finite() && trial_value >= value - noise {
-                accepted = true;
-                if trial_value > value + noise {
-                    last_progress = iterations;
-                }
-                log_p = trial;
-                p = trial_p;
-                value = trial_value;
-                break;
-            }
-            alpha *= 0.5;
-        }
-        let upper = certificate(objective, constraints, &log_p, &p, &mu);
-        let nearly = best_upper - value <= 1e-10 * value.abs().max(1e-300);
-        // Far from the end any visible shrinking of the gap is progress; near it (far below
-        // what reports need) only halving is, so that round-off plateaus end quickly.
-        let progress = if nearly { 0.5 } else { 1e-3 };
-        if upper < best_upper - progress * (best_upper - value) {
+        let (accepted, alpha) = line_search(objective, &mut x, &du, largest);
+        if accepted.is_some_and(|rose| rose) {
             last_progress = iterations;
         }
+        if constraints.rows.is_empty() {
+            lift_sunken_states(objective, &mut x);
+        }
+        let upper = certificate_from(constraints, &x.g, &x.p, x.value, &mu);
+        let nearly = best_upper - x.value <= 1e-10 * x.value.abs().max(1e-300);
+        // Far from the end any visible shrinking of the gap is progress; near it (far below
+        // what reports need) only halving is, so that round-off plateaus end quickly.
+        // The current point's own certificate counts too: after a damped phase it can sit far
+        // above the best one for a while and still fall steadily towards it.
+        let progress = if nearly { 0.5 } else { 1e-3 };
+        if upper < best_upper - progress * (best_upper - x.value)
+            || (!nearly && upper < previous_upper - progress * (previous_upper - x.value))
+        {
+            last_progress = iterations;
+        }
+        previous_upper = upper;
         best_upper = best_upper.min(upper);
         let at_roundoff = alpha == 1.0 && largest < 1e-15;
         let window = if nearly {
@@ -215,18 +250,100 @@ pub fn maximise(
             STALL_ITERATIONS
         };
         let stalled = iterations - last_progress > window;
-        if !accepted || at_roundoff || stalled {
+        if accepted.is_none() || at_roundoff || stalled {
             break; // converged to working precision, or no progress possible there
         }
     }
     Certified {
-        log_p,
-        p,
-        value,
-        upper: best_upper.max(value),
+        upper: best_upper.max(x.value),
+        log_p: x.log_p,
+        p: x.p,
+        value: x.value,
         steps: iterations,
         analyses: analyses.reduced.analyses + analyses.damped.analyses + analyses.bordered.analyses,
     }
+}
+
+/// Backtracking along `du`: the largest step in `a, a/2, a/4, ...` (`a = 1`, or less if the
+/// step is longer than [`STEP_CAP`]) at which `Phi` does not fall beyond round-off. Moves `x`
+/// there and returns whether `Phi` rose visibly (`None` if no step was accepted) and the step.
+fn line_search(objective: &Objective, x: &mut Point, du: &[f64], largest: f64) -> (Option<bool>, f64) {
+    let mut alpha: f64 = if largest > STEP_CAP {
+        STEP_CAP / largest
+    } else {
+        1.0
+    };
+    for _ in 0..60 {
+        let mut trial: Vec<f64> = x.log_p.iter().zip(du).map(|(l, d)| l + alpha * d).collect();
+        normalise_logs(&mut trial);
+        let (value, roundoff) = Point::value_at(objective, &trial);
+        if value.is_finite() && value >= x.value - 4.0 * roundoff {
+            let rose = value > x.value + 4.0 * roundoff;
+            if let Some(next) = Point::new(objective, trial) {
+                *x = next;
+                return (Some(rose), alpha);
+            }
+        }
+        alpha *= 0.5;
+    }
+    (None, alpha)
+}
+
+/// Raises each state that sits more than an e-fold below its own balance to that balance.
+///
+/// With its neighbours held, `g_k` at `u_k + d` is `Q_k e^-d + rest_k - exit_k d`
+/// ([`Objective::gradient_parts`]), so `g_k = lambda` has the root
+/// `d = W((Q_k / exit_k) e^(-b / exit_k)) + b / exit_k`, `b = rest_k - lambda` (Lambert W).
+/// Newton's linear model climbs only about one e-fold per step towards it (the inflow term is
+/// exponential in `-d`), which made states that a damped step had pushed too deep creep back
+/// over dozens of steps. With `lambda = Phi(p)` this is exact coordinate ascent on
+/// `Phi - lambda (sum p - 1)`, and by homogeneity the renormalised point has `Phi` no lower;
+/// the new point is kept only if that holds to round-off (several states move at once).
+fn lift_sunken_states(objective: &Objective, x: &mut Point) {
+    let mut lifted = x.log_p.clone();
+    let mut any = false;
+    for (k, level) in lifted.iter_mut().enumerate() {
+        let exit = objective.exit[k];
+        let log_inflow = x.parts.log_inflow[k];
+        let b = x.parts.rest[k] - x.value;
+        // Only where even one e-fold up leaves g_k above lambda (Q e^-1 > exit - b).
+        let sunken = exit - b <= 0.0 || log_inflow - 1.0 > (exit - b).ln();
+        if exit <= 0.0 || log_inflow == f64::NEG_INFINITY || !sunken {
+            continue;
+        }
+        let d = lambert_w_of_log(log_inflow - exit.ln() - b / exit) + b / exit;
+        if d > 1.0 {
+            *level += d;
+            any = true;
+        }
+    }
+    if !any {
+        return;
+    }
+    let Some(next) = Point::new(objective, lifted) else {
+        return;
+    };
+    if next.value >= x.value - 4.0 * next.noise(objective) {
+        *x = next;
+    }
+}
+
+/// `W(e^L)`, the principal branch of Lambert's W (`W e^W = z`) at `z = e^L`, from `L` alone so
+/// that `z` may lie beyond the double range.
+fn lambert_w_of_log(log_z: f64) -> f64 {
+    if log_z < -30.0 {
+        return log_z.exp(); // W(z) = z - z^2 + ...
+    }
+    // w + ln w = L, by Newton from above the root (w = L for large L, z otherwise).
+    let mut w: f64 = if log_z > 1.0 { log_z } else { log_z.exp() };
+    for _ in 0..100 {
+        let step = (w + w.ln() - log_z) / (1.0 + 1.0 / w);
+        w = (w - step).max(w / 16.0);
+        if step.abs() <= 1e-14 * w {
+            break;
+        }
+    }
+    w
 }
 
 /// The symbolic analyses kept across Newton steps, one per kind of linear system (their
@@ -251,42 +368,44 @@ struct Analyses {
 struct ScaledRows {
     /// Entries `(row, column, value)`, diagonal `-1` in every row.
     entries: Vec<(usize, usize, f64)>,
-    /// `ln` of each row's diagonal magnitude before scaling (damping included).
-    log_scale: Vec<f64>,
+    /// `1 /` each row's diagonal magnitude before scaling (damping included).
+    inverse: Vec<f64>,
 }
 
 impl ScaledRows {
-    /// `damping` is `(g, lambda)`: the damped model adds `DAMPING * min(g_k - lambda, 0)` to
-    /// the diagonal (the row-scaled share of the curvature of `ln p` coordinates).
-    fn new(objective: &Objective, log_p: &[f64], damping: Option<(&[f64], f64)>) -> Self {
+    /// With `damping = Some(lambda)` the damped model adds `DAMPING * min(g_k - lambda, 0)`
+    /// to the diagonal (the row-scaled share of the curvature of `ln p` coordinates).
+    fn new(objective: &Objective, x: &Point, damping: Option<f64>) -> Self {
         let n = objective.n;
-        let log_inflow = objective.gradient_parts(log_p).log_inflow;
+        let log_inflow = &x.parts.log_inflow;
         let mut log_scale: Vec<f64> = (0..n)
             .map(|k| log_add(objective.exit[k].ln(), log_inflow[k]))
             .collect();
-        if let Some((g, lambda)) = damping {
+        if let Some(lambda) = damping {
             for (k, scale) in log_scale.iter_mut().enumerate() {
-                let extra = DAMPING * (lambda - g[k]);
+                let extra = DAMPING * (lambda - x.g[k]);
                 if extra > 0.0 {
                     *scale = log_add(*scale, extra.ln());
                 }
             }
         }
+        // 1 / scale; it may underflow to 0 only where the outflow share is below 1e-308.
+        let inverse: Vec<f64> = log_scale.iter().map(|l| (-l).exp()).collect();
         let mut entries = Vec::with_capacity(2 * objective.jumps.len() + n);
         for j in &objective.jumps {
             let (s, t) = (j.source, j.target);
             // Jump s -> t: r in row s (column t), r p_s / p_t in row t (column s).
-            entries.push((s, t, (j.rate.ln() - log_scale[s]).exp()));
-            let inflow = j.rate.ln() + log_p[s] - log_p[t];
+            entries.push((s, t, j.rate * inverse[s]));
+            let inflow = j.log_rate + x.log_p[s] - x.log_p[t];
             entries.push((t, s, (inflow - log_scale[t]).exp()));
         }
         entries.extend((0..n).map(|k| (k, k, -1.0)));
-        Self { entries, log_scale }
+        Self { entries, inverse }
     }
 
     /// `v_k` divided by row `k`'s scale.
     fn scale(&self, k: usize, v: f64) -> f64 {
-        v * (-self.log_scale[k]).exp()
+        v * self.inverse[k]
     }
 }
 
@@ -304,22 +423,21 @@ fn log_add(a: f64, b: f64) -> f64 {
 fn newton_step(
     objective: &Objective,
     constraints: &Constraints,
-    p: &[f64],
-    log_p: &[f64],
+    x: &Point,
     damped: bool,
     analyses: &mut Analyses,
 ) -> Result<(Vec<f64>, Vec<f64>), SolveError> {
-    let g = objective.gradient(log_p);
+    let (p, g) = (&x.p[..], &x.g[..]);
     // lambda = p . g = Phi(p) (Euler's relation: Phi is homogeneous of degree one).
     let lambda: f64 = g.iter().zip(p).map(|(g, p)| g * p).sum();
-    let rows = ScaledRows::new(objective, log_p, damped.then_some((&g[..], lambda)));
+    let rows = ScaledRows::new(objective, x, damped.then_some(lambda));
     let (du, mu) = if !constraints.rows.is_empty() {
-        bordered_solve(&rows, p, constraints, &g, &mut analyses.bordered)?
+        bordered_solve(&rows, p, constraints, g, &mut analyses.bordered)?
     } else if damped {
-        (damped_solve(&rows, p, &g, &mut analyses.damped)?, Vec::new())
+        (damped_solve(&rows, p, g, &mut analyses.damped)?, Vec::new())
     } else {
         (
-            reduced_solve(&rows, p, &g, lambda, &mut analyses.reduced)?,
+            reduced_solve(&rows, p, g, lambda, &mut analyses.reduced)?,
             Vec::new(),
         )
     };

@@ -14,6 +14,8 @@ pub struct Jump {
     pub source: usize,
     pub target: usize,
     pub rate: f64,
+    /// `ln rate`, kept because the Newton solver needs it for every jump at every step.
+    pub log_rate: f64,
 }
 
 /// The gradient of `Phi` in two parts (see [`Objective::gradient_parts`]).
@@ -21,6 +23,17 @@ pub struct Jump {
 pub struct GradientParts {
     pub rest: Vec<f64>,
     pub log_inflow: Vec<f64>,
+}
+
+impl GradientParts {
+    /// `g = rest + exp(log_inflow)`.
+    pub fn gradient(&self) -> Vec<f64> {
+        self.rest
+            .iter()
+            .zip(&self.log_inflow)
+            .map(|(r, q)| r + q.exp())
+            .collect()
+    }
 }
 
 /// The data of `Phi` for one network.
@@ -53,10 +66,11 @@ impl Objective {
         }
         let jumps = merged
             .into_iter()
-            .map(|((source, target), rate)| Jump {
+            .map(|((source, target), rate): ((usize, usize), f64)| Jump {
                 source,
                 target,
                 rate,
+                log_rate: rate.ln(),
             })
             .collect();
         Self {
@@ -118,13 +132,7 @@ impl Objective {
     /// Gradient `g_k = a_k + sum_i R_ik phi_i + (R p)_k / p_k`, with
     /// `(R p)_k / p_k = sum_j r_kj exp(ln p_j - ln p_k) - exit_k` computed from logs.
     pub fn gradient(&self, log_p: &[f64]) -> Vec<f64> {
-        let parts = self.gradient_parts(log_p);
-        parts
-            .rest
-            .iter()
-            .zip(&parts.log_inflow)
-            .map(|(r, q)| r + q.exp())
-            .collect()
+        self.gradient_parts(log_p).gradient()
     }
 
     /// The gradient split as `g_k = rest_k + exp(log_inflow_k)`: the inflow term
@@ -137,17 +145,20 @@ impl Objective {
         let mut rest: Vec<f64> = (0..self.n)
             .map(|k| self.work_gradient[k] - self.exit[k] * (phi[k] + 1.0))
             .collect();
-        for j in &self.jumps {
-            rest[j.source] += j.rate * phi[j.target];
-        }
-        let inflow_log = |j: &Jump| j.rate.ln() + log_p[j.source] - log_p[j.target];
+        // Streaming log-sum-exp of the inflow terms: one exponential per jump, rescaling the
+        // running sum whenever a larger term arrives.
         let mut top = vec![f64::NEG_INFINITY; self.n];
-        for j in &self.jumps {
-            top[j.target] = top[j.target].max(inflow_log(j));
-        }
         let mut sum = vec![0.0; self.n];
         for j in &self.jumps {
-            sum[j.target] += (inflow_log(j) - top[j.target]).exp();
+            rest[j.source] += j.rate * phi[j.target];
+            let t = j.target;
+            let term = j.log_rate + log_p[j.source] - log_p[t];
+            if term > top[t] {
+                sum[t] = sum[t] * (top[t] - term).exp() + 1.0;
+                top[t] = term;
+            } else {
+                sum[t] += (term - top[t]).exp();
+            }
         }
         let log_inflow = top.iter().zip(&sum).map(|(t, s)| t + s.ln()).collect();
         GradientParts { rest, log_inflow }

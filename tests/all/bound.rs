@@ -20,7 +20,7 @@ proptest! {
     /// program (Clarabel) with Newton's polish, to 1e-8 relative.
     #[test]
     fn newton_and_conic_routes_agree(net in network_strategy(8)) {
-        let newton = bound::solve(&net, &PairSelection::All, &BoundSettings { newton_only: true, ..Default::default() }).unwrap();
+        let newton = bound::solve(&net, &PairSelection::All, &BoundSettings { newton_only: true, newton: ergopath::bound::newton::NewtonSettings { max_iterations: 2000, ..Default::default() }, ..Default::default() }).unwrap();
         let conic = bound::solve(&net, &PairSelection::All, &BoundSettings { conic_first: true, ..Default::default() }).unwrap();
         prop_assert!(close(newton.power, conic.power, 1e-8, 1e-12 * net.max_rate()),
             "newton {} vs conic {} ({})", newton.power, conic.power, conic.route);
@@ -458,5 +458,24 @@ fn near_equilibrium_estimate_converges_linearly_in_the_drive() {
             (5.0..20.0).contains(&ratio),
             "{path}: error ratio {ratio} for a tenfold scale (linear: 10)"
         );
+    }
+}
+
+#[test]
+fn explore_deep_optimum() {
+    use ergopath::bench::{synthetic, Family};
+    for n in [1000usize, 4000] {
+        for (w, d) in [(1.0, 5.0), (1.0, 10.0), (5.0, 5.0)] {
+            let Some(net) = synthetic(Family::Banded, n, 7).scaled(w, d, 1.0) else { continue };
+            let t = std::time::Instant::now();
+            let b = bound::solve(&net, &PairSelection::All, &BoundSettings { newton_only: true, newton: ergopath::bound::newton::NewtonSettings { max_iterations: 2000, ..Default::default() }, ..Default::default() });
+            match b {
+                Ok(b) => {
+                    let low = b.log_p.iter().copied().fold(f64::INFINITY, f64::min);
+                    eprintln!("n {n} w {w} d {d}: min ln p* {low:.0} steps {} gap {:.1e} {:.2}s", b.newton_steps, b.relative_gap(), t.elapsed().as_secs_f64());
+                }
+                Err(e) => eprintln!("n {n} w {w} d {d}: {e}"),
+            }
+        }
     }
 }

@@ -183,19 +183,9 @@ pub fn solve(
         .max((certified.value - objective.work(&baseline)).abs());
     // Where the bound itself is zero to round-off (no work labels), the gap is compared with
     // the round-off of Phi's terms and of the certificate `max g - g.p` instead.
-    let phi = |i: usize| certified.log_p[i] - objective.log_equilibrium[i];
-    let certificate_roundoff: f64 = f64::EPSILON
-        * objective
-            .jumps
-            .iter()
-            .map(|j| {
-                // Each term of g.p is a one-way flux r p_s times a log ratio.
-                let (s, t) = (j.source, j.target);
-                j.rate * certified.p[s] * (1.0 + (phi(s) - phi(t)).abs())
-            })
-            .sum::<f64>();
-    let noise =
-        100.0 * (objective.value_roundoff(&certified.p, &certified.log_p) + certificate_roundoff);
+    let (p, log_p) = (&certified.p, &certified.log_p);
+    let noise = 100.0
+        * (objective.value_roundoff(p, log_p) + objective.certificate_roundoff(p, log_p));
     if gap > CERTIFIED_GAP * scale + noise {
         return Err(SolveError::Uncertified(format!(
             "the best value found, {:.6e}, is proven only to within {:.1e} (relative gap {:.1e}, more than {CERTIFIED_GAP:.0e}); the network's rates span {:.1e} to {:.1e} per time unit, too stiff for the solver from this start",

@@ -118,6 +118,11 @@ fn certificate_from(constraints: &Constraints, g: &[f64], p: &[f64], value: f64,
     }
     let top = h.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let mean: f64 = h.iter().zip(p).map(|(h, p)| h * p).sum();
+    if !(top.is_finite() && mean.is_finite()) {
+        // A gradient beyond the double range (a state e^-700 below an inflowing neighbour)
+        // proves nothing.
+        return f64::INFINITY;
+    }
     let infeasibility: f64 = constraints
         .residuals(p)
         .iter()
@@ -157,9 +162,10 @@ impl Point {
         })
     }
 
-    /// Round-off of `Phi` here ([`Objective::value_roundoff`]).
+    /// Round-off of `Phi` and of its certificate here.
     fn noise(&self, objective: &Objective) -> f64 {
         objective.value_roundoff(&self.p, &self.log_p)
+            + objective.certificate_roundoff(&self.p, &self.log_p)
     }
 
     /// `Phi` here, without the gradient (for line-search trials).
@@ -186,7 +192,6 @@ pub fn maximise(
     });
     let mut mu = vec![0.0; constraints.rows.len()];
     let mut best_upper = certificate_from(constraints, &x.g, &x.p, x.value, &mu);
-    let scale = objective.exit.iter().copied().fold(0.0, f64::max);
     let mut iterations = 0;
     let mut last_progress = 0;
     let mut analyses = Analyses::default();
@@ -195,7 +200,7 @@ pub fn maximise(
     let mut damped = false;
     let mut previous_upper = best_upper;
     while iterations < settings.max_iterations {
-        let floor = 16.0 * x.noise(objective) + 1e-15 * scale;
+        let floor = 16.0 * x.noise(objective);
         if best_upper - x.value <= settings.relative_gap * x.value.abs() + floor {
             break;
         }

@@ -120,6 +120,18 @@ impl Objective {
         f64::EPSILON * (entropic + work)
     }
 
+    /// Round-off scale of the certificate `max g - g . p`: each term of `g . p` is a one-way
+    /// flux `r p_s` times a log ratio, known to machine epsilon of its size.
+    pub fn certificate_roundoff(&self, p: &[f64], log_p: &[f64]) -> f64 {
+        let phi = |i: usize| log_p[i] - self.log_equilibrium[i];
+        f64::EPSILON
+            * self
+                .jumps
+                .iter()
+                .map(|j| j.rate * p[j.source] * (1.0 + (phi(j.source) - phi(j.target)).abs()))
+                .sum::<f64>()
+    }
+
     /// `(R p)_i`: net probability inflow of each state under the baseline.
     pub fn generator_times(&self, p: &[f64]) -> Vec<f64> {
         let mut out: Vec<f64> = (0..self.n).map(|i| -self.exit[i] * p[i]).collect();
@@ -153,7 +165,9 @@ impl Objective {
             rest[j.source] += j.rate * phi[j.target];
             let t = j.target;
             let term = j.log_rate + log_p[j.source] - log_p[t];
-            if term > top[t] {
+            if term == f64::NEG_INFINITY {
+                continue; // a zero rate (or an empty source) adds nothing
+            } else if term > top[t] {
                 sum[t] = sum[t] * (top[t] - term).exp() + 1.0;
                 top[t] = term;
             } else {

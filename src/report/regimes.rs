@@ -96,8 +96,9 @@ impl RegimesReport {
             ));
         }
         out.push_str(&format!(
-            "  regime: strong drive when the indicator exceeds {}, else near equilibrium when the\n  shift is below {}, else crossover (see DEVELOPERS.md).\n",
+            "  regime: strong drive when the indicator exceeds {} and the strong-drive correction is\n  under {} of the corner value, else near equilibrium when the shift is below {}, else\n  crossover (see DEVELOPERS.md).\n",
             crate::bound::closed_form::STRONG_DRIVE_ABOVE,
+            crate::bound::closed_form::STRONG_DRIVE_CORRECTION_BELOW,
             crate::bound::closed_form::NEAR_EQUILIBRIUM_SHIFT
         ));
         out

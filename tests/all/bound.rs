@@ -460,22 +460,3 @@ fn near_equilibrium_estimate_converges_linearly_in_the_drive() {
         );
     }
 }
-
-#[test]
-fn explore_deep_optimum() {
-    use ergopath::bench::{synthetic, Family};
-    for n in [1000usize, 4000] {
-        for (w, d) in [(1.0, 5.0), (1.0, 10.0), (5.0, 5.0)] {
-            let Some(net) = synthetic(Family::Banded, n, 7).scaled(w, d, 1.0) else { continue };
-            let t = std::time::Instant::now();
-            let b = bound::solve(&net, &PairSelection::All, &BoundSettings { newton_only: true, newton: ergopath::bound::newton::NewtonSettings { max_iterations: 2000, ..Default::default() }, ..Default::default() });
-            match b {
-                Ok(b) => {
-                    let low = b.log_p.iter().copied().fold(f64::INFINITY, f64::min);
-                    eprintln!("n {n} w {w} d {d}: min ln p* {low:.0} steps {} gap {:.1e} {:.2}s", b.newton_steps, b.relative_gap(), t.elapsed().as_secs_f64());
-                }
-                Err(e) => eprintln!("n {n} w {w} d {d}: {e}"),
-            }
-        }
-    }
-}

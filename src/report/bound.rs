@@ -2,8 +2,8 @@
 //! optimal distribution beside the baseline, the attaining design, its speed table, and the
 //! rate-capped design when a cap is given.
 
-use super::table::{num, percent, sci, wrap, Align, Table};
-use super::{named_distribution, StateProbability, UnitsJson};
+use super::table::{num, percent, wrap, Align, Table};
+use super::{named_distribution, named_log_distribution, StateProbability, UnitsJson};
 use crate::bound::design::VerifiedDesign;
 use crate::bound::{closed_form, Bound};
 use crate::model::{Model, PairSelection};
@@ -205,7 +205,7 @@ impl BoundReport {
             bound: BoundNumbers::of(bound, u),
             benefit: u.from_kt(bound.benefit),
             maintenance_cost: u.from_kt(bound.maintenance),
-            optimal_distribution: named_distribution(model, &bound.p),
+            optimal_distribution: named_log_distribution(model, &bound.log_p),
             baseline_distribution: named_distribution(model, &bound.baseline),
             design: design.map(|d| DesignJson::new(d, model, bound)),
             target_fraction,
@@ -254,7 +254,7 @@ impl BoundReport {
             .iter()
             .zip(&self.optimal_distribution)
         {
-            dist.row(vec![b.name.clone(), sci(b.probability), sci(o.probability)]);
+            dist.row(vec![b.name.clone(), b.text(), o.text()]);
         }
         out.push_str(&dist.render());
         match &self.design {

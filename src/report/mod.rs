@@ -46,6 +46,53 @@ impl UnitsJson {
 pub struct StateProbability {
     pub name: String,
     pub probability: f64,
+    /// `ln probability`, given only where the probability lies below the smallest normal
+    /// double (optima of large networks reach e^-1000 and beyond; `probability` is then 0 or
+    /// subnormal and this is the number to use).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ln_probability: Option<f64>,
+}
+
+impl StateProbability {
+    /// The probability in scientific notation, from its logarithm where it underflows.
+    pub fn text(&self) -> String {
+        match self.ln_probability {
+            Some(ln) => sci_from_ln(ln),
+            None => table::sci(self.probability),
+        }
+    }
+}
+
+/// `e^ln` in the notation of [`table::sci`], also beyond the double range.
+pub fn sci_from_ln(ln: f64) -> String {
+    if ln == f64::NEG_INFINITY {
+        return table::sci(0.0);
+    }
+    let decimal = ln / std::f64::consts::LN_10;
+    let mut exponent = decimal.floor();
+    let mut mantissa = 10f64.powf(decimal - exponent);
+    if format!("{mantissa:.5}").starts_with("10") {
+        mantissa /= 10.0;
+        exponent += 1.0;
+    }
+    format!("{mantissa:.5}e{exponent}")
+}
+
+/// A distribution given by its logarithms (see [`StateProbability::ln_probability`]).
+pub fn named_log_distribution(model: &Model, log_p: &[f64]) -> Vec<StateProbability> {
+    model
+        .state_names
+        .iter()
+        .zip(log_p)
+        .map(|(name, &ln)| {
+            let probability = ln.exp();
+            StateProbability {
+                name: name.clone(),
+                probability,
+                ln_probability: (probability < f64::MIN_POSITIVE).then_some(ln),
+            }
+        })
+        .collect()
 }
 
 pub fn named_distribution(model: &Model, p: &[f64]) -> Vec<StateProbability> {
@@ -56,6 +103,7 @@ pub fn named_distribution(model: &Model, p: &[f64]) -> Vec<StateProbability> {
         .map(|(name, &probability)| StateProbability {
             name: name.clone(),
             probability,
+            ln_probability: None,
         })
         .collect()
 }

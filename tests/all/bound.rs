@@ -460,3 +460,63 @@ fn near_equilibrium_estimate_converges_linearly_in_the_drive() {
         );
     }
 }
+
+/// A fast driven 4-ring with a slow dead-end chain of `len` states hanging off state 3 (all
+/// energies 0, chain rates 0.01 both ways): the optimum empties the chain geometrically.
+fn ring_with_appendix(len: usize) -> Network {
+    let energies = vec![0.0; 4 + len];
+    let mut channels: Vec<Channel> = (0..4)
+        .map(|i| {
+            let work = if i == 0 { 1.0 } else { 0.0 };
+            Channel::balanced(&energies, i, (i + 1) % 4, 100.0, work, 1.0 + work)
+        })
+        .collect();
+    for i in 3..3 + len {
+        channels.push(Channel::balanced(&energies, i, i + 1, 0.01, 0.0, 0.0));
+    }
+    Network { energies, channels }
+}
+
+/// An optimum whose far states lie below the smallest double (e^-745) is certified, and its
+/// tail follows the stationarity condition. Inside the chain (rates r both ways, energies 0,
+/// no work) `g_k = lambda` with `lambda = Phi*` (Euler's relation) and a geometric tail
+/// `p_{k+1} = rho p_k` gives `-2r + r (rho + 1/rho) = Phi*`, so
+/// `rho + 1/rho = 2 + Phi*/r` (derived here from the gradient of Phi, theory note section 3).
+#[test]
+fn optimum_below_the_smallest_double_is_certified_and_follows_the_tail_law() {
+    let settings = BoundSettings::default();
+    let long = bound::solve(&ring_with_appendix(150), &PairSelection::All, &settings).unwrap();
+    let short = bound::solve(&ring_with_appendix(60), &PairSelection::All, &settings).unwrap();
+    assert!(long.relative_gap() < 1e-10, "gap {}", long.relative_gap());
+    let deepest = long.log_p.iter().copied().fold(f64::INFINITY, f64::min);
+    assert!(deepest < -1000.0, "deepest ln p* {deepest}");
+    // Chain states beyond e^-600 carry nothing: the two chains give the same bound.
+    assert!(close(long.power, short.power, 1e-12, 0.0), "{} vs {}", long.power, short.power);
+    let ratio_sum = 2.0 + long.power / 0.01;
+    let rho = (ratio_sum - (ratio_sum * ratio_sum - 4.0).sqrt()) / 2.0;
+    for k in [40, 100, 140] {
+        let step = long.log_p[k + 1] - long.log_p[k];
+        assert!((step - rho.ln()).abs() < 1e-9, "state {k}: ln ratio {step} vs {}", rho.ln());
+    }
+}
+
+/// The same kind of optimum through the binary: the report gives the far states'
+/// probabilities by their logarithm (`ln_probability`, where `probability` underflows), and
+/// the attaining design, which leaves states beyond e^-600 to the baseline, is verified by an
+/// independent steady-state solve at its 99% target.
+#[test]
+fn report_of_an_optimum_below_the_smallest_double() {
+    let out = crate::common::run(&["bound", "tests/fixtures/deep/appendix.toml", "--json"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let last = v["optimal_distribution"].as_array().unwrap().last().unwrap().clone();
+    assert_eq!(last["probability"].as_f64(), Some(0.0));
+    assert!(last["ln_probability"].as_f64().unwrap() < -1000.0, "{last}");
+    let first = &v["optimal_distribution"][0];
+    assert!(first.get("ln_probability").is_none(), "{first}");
+    let design = &v["design"];
+    let (achieved, headroom) = (design["achieved_power"].as_f64().unwrap(), v["bound"]["headroom"].as_f64().unwrap());
+    let baseline = v["baseline_power"].as_f64().unwrap();
+    assert!(close((achieved - baseline) / headroom, 0.99, 1e-6, 0.0), "{design}");
+    assert!(close(achieved, design["predicted_power"].as_f64().unwrap(), 1e-9, 0.0), "{design}");
+}

@@ -248,7 +248,11 @@ impl TreeDesign {
                 .max_by(|&&a, &&b| p[a].total_cmp(&p[b]))
                 .expect("non-empty group")
         };
-        let top = bound.log_p.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let top = bound
+            .log_p
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max);
         let kept: Vec<bool> = bound
             .log_p
             .iter()

@@ -74,6 +74,8 @@ pub struct Bound {
     /// Newton steps of the final solve, and the symbolic analyses they needed.
     pub newton_steps: usize,
     pub symbolic_analyses: usize,
+    /// Newton systems of the final solve that conjugate gradients solved.
+    pub iterative_solves: usize,
 }
 
 impl Bound {
@@ -185,7 +187,9 @@ pub fn solve(
     // the round-off of Phi's terms and of the certificate `max g - g.p` instead.
     let (p, log_p) = (&certified.p, &certified.log_p);
     let noise = 100.0
-        * (objective.value_roundoff(p, log_p) + objective.certificate_roundoff(p, log_p));
+        * (objective.value_roundoff(p, log_p)
+            + objective.flux_roundoff(p, log_p)
+            + objective.gradient_roundoff(log_p));
     if gap > CERTIFIED_GAP * scale + noise {
         return Err(SolveError::Uncertified(format!(
             "the best value found, {:.6e}, is proven only to within {:.1e} (relative gap {:.1e}, more than {CERTIFIED_GAP:.0e}); the network's rates span {:.1e} to {:.1e} per time unit, too stiff for the solver from this start",
@@ -213,5 +217,6 @@ pub fn solve(
         route,
         newton_steps: certified.steps,
         symbolic_analyses: certified.analyses,
+        iterative_solves: certified.iterative_solves,
     })
 }

@@ -157,7 +157,7 @@ pub struct BenchRequest {
 /// `ergopath bench`: timings on the seeded synthetic families, printed and written as CSV.
 pub fn bench(request: &BenchRequest) -> Result<String, Error> {
     use crate::bench::{time_bound, time_steady, Family};
-    use crate::report::bench::{bound_tables, steady_tables};
+    use crate::report::bench::{bound_tables, refusals, steady_tables};
     use crate::report::output::write_atomic;
     let sizes = request.steady_sizes.iter().chain(&request.bound_sizes);
     if let Some(&bad) = sizes.into_iter().find(|&&n| n < 4) {
@@ -171,7 +171,8 @@ pub fn bench(request: &BenchRequest) -> Result<String, Error> {
     let steady_path = request.out_dir.join("steady.csv");
     write_atomic(&steady_path, csv.as_bytes())?;
     let bound_rows = time_bound(&request.bound_sizes, &families, runs, request.conic_limit)?;
-    let (bound_table, bound_csv) = bound_tables(&bound_rows);
+    let (mut bound_table, bound_csv) = bound_tables(&bound_rows);
+    bound_table.push_str(&refusals(&bound_rows));
     let bound_path = request.out_dir.join("bound.csv");
     write_atomic(&bound_path, bound_csv.as_bytes())?;
     let mut out = format!(

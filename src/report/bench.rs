@@ -1,5 +1,6 @@
 //! The `bench` report: timing tables for the terminal and the same rows as CSV.
 
+use super::csv_field;
 use super::table::{Align, Table};
 use crate::bench::{BoundTiming, DesignTiming, SteadyTiming};
 
@@ -124,13 +125,21 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
                 r.route.into(),
                 format!("{:.4}", r.seconds),
                 format!("{:.0}", r.seconds / r.steady_seconds),
-                r.newton_steps.to_string(),
-                format!("{:.1e}", r.relative_gap),
+                if r.refused.is_some() {
+                    "-".into()
+                } else {
+                    r.newton_steps.to_string()
+                },
+                if r.refused.is_some() {
+                    "refused".into()
+                } else {
+                    format!("{:.1e}", r.relative_gap)
+                },
                 r.design_seconds.map_or("-".into(), |s| format!("{s:.4}")),
                 megabytes(r.peak_mb),
             ];
             let line = format!(
-                "{},{},{},{:e},{:e},{},{:e},{:e},{},{}",
+                "{},{},{},{:e},{:e},{},{:e},{:e},{},{},{}",
                 r.family.name(),
                 r.states,
                 r.route,
@@ -140,7 +149,8 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
                 r.relative_gap,
                 r.headroom,
                 r.design_seconds.map_or(String::new(), |s| format!("{s:e}")),
-                csv_megabytes(r.peak_mb)
+                csv_megabytes(r.peak_mb),
+                r.refused.as_deref().map_or(String::new(), csv_field)
             );
             (cells, line)
         })
@@ -158,7 +168,23 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
     ];
     tabulate(
         &columns,
-        "family,states,route,median_seconds,steady_seconds,newton_steps,relative_gap,headroom_kT,design_seconds,peak_mb",
+        "family,states,route,median_seconds,steady_seconds,newton_steps,relative_gap,headroom_kT,design_seconds,peak_mb,refused",
         &rows,
     )
+}
+
+/// The reasons of the bound rows that were refused, one line each (empty if none).
+pub fn refusals(rows: &[BoundTiming]) -> String {
+    rows.iter()
+        .filter_map(|r| {
+            r.refused.as_ref().map(|reason| {
+                format!(
+                    "  {} {} ({}): {reason}\n",
+                    r.family.name(),
+                    r.states,
+                    r.route
+                )
+            })
+        })
+        .collect()
 }

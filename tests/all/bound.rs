@@ -491,12 +491,21 @@ fn optimum_below_the_smallest_double_is_certified_and_follows_the_tail_law() {
     let deepest = long.log_p.iter().copied().fold(f64::INFINITY, f64::min);
     assert!(deepest < -1000.0, "deepest ln p* {deepest}");
     // Chain states beyond e^-600 carry nothing: the two chains give the same bound.
-    assert!(close(long.power, short.power, 1e-12, 0.0), "{} vs {}", long.power, short.power);
+    assert!(
+        close(long.power, short.power, 1e-12, 0.0),
+        "{} vs {}",
+        long.power,
+        short.power
+    );
     let ratio_sum = 2.0 + long.power / 0.01;
     let rho = (ratio_sum - (ratio_sum * ratio_sum - 4.0).sqrt()) / 2.0;
     for k in [40, 100, 140] {
         let step = long.log_p[k + 1] - long.log_p[k];
-        assert!((step - rho.ln()).abs() < 1e-9, "state {k}: ln ratio {step} vs {}", rho.ln());
+        assert!(
+            (step - rho.ln()).abs() < 1e-9,
+            "state {k}: ln ratio {step} vs {}",
+            rho.ln()
+        );
     }
 }
 
@@ -507,16 +516,66 @@ fn optimum_below_the_smallest_double_is_certified_and_follows_the_tail_law() {
 #[test]
 fn report_of_an_optimum_below_the_smallest_double() {
     let out = crate::common::run(&["bound", "tests/fixtures/deep/appendix.toml", "--json"]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
-    let last = v["optimal_distribution"].as_array().unwrap().last().unwrap().clone();
+    let last = v["optimal_distribution"]
+        .as_array()
+        .unwrap()
+        .last()
+        .unwrap()
+        .clone();
     assert_eq!(last["probability"].as_f64(), Some(0.0));
     assert!(last["ln_probability"].as_f64().unwrap() < -1000.0, "{last}");
     let first = &v["optimal_distribution"][0];
     assert!(first.get("ln_probability").is_none(), "{first}");
     let design = &v["design"];
-    let (achieved, headroom) = (design["achieved_power"].as_f64().unwrap(), v["bound"]["headroom"].as_f64().unwrap());
+    let (achieved, headroom) = (
+        design["achieved_power"].as_f64().unwrap(),
+        v["bound"]["headroom"].as_f64().unwrap(),
+    );
     let baseline = v["baseline_power"].as_f64().unwrap();
-    assert!(close((achieved - baseline) / headroom, 0.99, 1e-6, 0.0), "{design}");
-    assert!(close(achieved, design["predicted_power"].as_f64().unwrap(), 1e-9, 0.0), "{design}");
+    assert!(
+        close((achieved - baseline) / headroom, 0.99, 1e-6, 0.0),
+        "{design}"
+    );
+    assert!(
+        close(
+            achieved,
+            design["predicted_power"].as_f64().unwrap(),
+            1e-9,
+            0.0
+        ),
+        "{design}"
+    );
+}
+
+/// On an expander-like network of 2500 states (the benchmark's random-chord family) the Newton
+/// systems go to conjugate gradients, and the bound equals the one found with the sparse LU
+/// alone to 1e-10 relative; both are certified.
+#[test]
+fn conjugate_gradient_and_lu_routes_agree_on_an_expander() {
+    use ergopath::bench::{synthetic, Family};
+    use ergopath::bound::newton::NewtonSettings;
+    let net = synthetic(Family::RandomChords, 2500, 11);
+    let iterative = bound::solve(&net, &PairSelection::All, &BoundSettings::default()).unwrap();
+    let direct_settings = BoundSettings {
+        newton: NewtonSettings {
+            iterative_from: usize::MAX,
+            ..Default::default()
+        },
+        ..Default::default()
+    };
+    let direct = bound::solve(&net, &PairSelection::All, &direct_settings).unwrap();
+    assert!(iterative.iterative_solves > 0 && direct.iterative_solves == 0);
+    assert!(iterative.relative_gap() < 1e-9 && direct.relative_gap() < 1e-9);
+    assert!(
+        close(iterative.power, direct.power, 1e-10, 0.0),
+        "{} vs {}",
+        iterative.power,
+        direct.power
+    );
 }

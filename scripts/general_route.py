@@ -77,6 +77,22 @@ def synthetic(family, n, seed):
     return energies, channels
 
 
+def side_chain(length):
+    """A fast driven 4-ring (rates 100 /s, 1 kT stored on its first step, drives 1 kT + work)
+    with a slow dead-end chain of `length` states off state 3 (0.01 /s both ways), energies 0:
+    the optimum empties the chain geometrically, to about e^(-7.6 length) (as
+    tests/fixtures/deep/appendix.toml for length 150)."""
+    energies = [0.0] * (4 + length)
+    channels = []
+    for i in range(4):
+        work = 1.0 if i == 0 else 0.0
+        drive = 1.0 + work
+        channels.append((i, (i + 1) % 4, 100.0, 100.0 * math.exp(-(drive - work)), work))
+    for i in range(3, 3 + length):
+        channels.append((i, i + 1, 0.01, 0.01, 0.0))
+    return energies, channels
+
+
 def median_seconds(runs, f):
     times, result = [], None
     for _ in range(runs):
@@ -210,6 +226,13 @@ def main():
                 agree = "ok" if value is not None and abs(ov - value) <= 1e-6 * abs(ov) else \
                     f"fails: {status}" if value is None else f"differs: {value} vs ours {ov}"
                 rows.append([family, n, "bound end to end", o, t, o / t, agree])
+    # A family where the general route fails: optima far below the double range.
+    for length in [10, 40, 150]:
+        energies, channels = side_chain(length)
+        o, ov, t, status, value = end_to_end(energies, channels, args.runs)
+        agree = "ok" if value is not None and abs(ov - value) <= 1e-6 * abs(ov) else \
+            f"fails: {status}" if value is None else f"differs: {value} vs ours {ov}"
+        rows.append(["side-chain", 4 + length, "bound end to end", o, t, o / t, agree])
     out = ROOT / "results" / "bench" / "general.csv"
     with open(out, "w", newline="") as f:
         w = csv.writer(f)

@@ -33,6 +33,9 @@ import scipy.sparse.linalg as spla
 
 ROOT = Path(__file__).resolve().parent.parent
 MODELS = ROOT / "tests" / "fixtures" / "models"
+# Largest difference between scipy's sparse-LU steady state and the mpmath one accepted (both
+# are exact to round-off; measured 1e-17 to 1e-16 on the shipped models).
+SCIPY_AGREEMENT = 1e-12
 OUT = ROOT / "tests" / "fixtures" / "reference"
 
 # Exact SI constants (2019 SI).
@@ -153,7 +156,9 @@ def reference_steady(path):
     p = steady_mp(model)
     p_scipy = steady_scipy(model)
     worst = max(abs(float(x) - y) for x, y in zip(p, p_scipy))
-    assert worst < 1e-9, f"{path}: scipy's sparse LU and mpmath disagree by {worst}"
+    # The size of this round-off difference varies with the machine (1e-17 to 1e-16 between
+    # runs), so the fixture records the agreement that is checked, not the difference itself.
+    assert worst < SCIPY_AGREEMENT, f"{path}: scipy's sparse LU and mpmath disagree by {worst}"
     fluxes, power, drive_power, sigma = observables(model, p)
     to_unit = 1 / model["to_kt"]
     return {
@@ -162,7 +167,7 @@ def reference_steady(path):
         "power": float(power * to_unit),
         "drive_power": float(drive_power * to_unit),
         "entropy_production": float(sigma),
-        "scipy_max_abs_difference": float(f"{worst:.1e}"),
+        "scipy_agrees_within": SCIPY_AGREEMENT,
     }
 
 

@@ -104,25 +104,7 @@ pub fn normalise_logs(log_p: &mut [f64]) {
 /// The Frank-Wolfe / Lagrangian certificate at `p`: for concave `Phi` and any multipliers `mu`,
 /// `max { Phi(q) : q in simplex, A q = 0 } <= Phi(p) + max_i h_i - h . p + mu . (A p)`
 /// with `h = g + A^T mu`.
-pub fn certificate(
-    objective: &Objective,
-    constraints: &Constraints,
-    log_p: &[f64],
-    p: &[f64],
-    mu: &[f64],
-) -> f64 {
-    let g = objective.gradient(log_p);
-    certificate_from(constraints, &g, p, objective.value(p, log_p), mu)
-}
-
-/// [`certificate`] from the gradient `g` and value at `p`.
-fn certificate_from(
-    constraints: &Constraints,
-    g: &[f64],
-    p: &[f64],
-    value: f64,
-    mu: &[f64],
-) -> f64 {
+fn certificate(constraints: &Constraints, g: &[f64], p: &[f64], value: f64, mu: &[f64]) -> f64 {
     let mut h = g.to_vec();
     for (row, m) in constraints.rows.iter().zip(mu) {
         for &(k, a) in row {
@@ -204,7 +186,7 @@ pub fn maximise(
         Point::new(objective, vec![0.0; objective.n]).expect("Phi is finite at the uniform law")
     });
     let mut mu = vec![0.0; constraints.rows.len()];
-    let mut best_upper = certificate_from(constraints, &x.g, &x.p, x.value, &mu);
+    let mut best_upper = certificate(constraints, &x.g, &x.p, x.value, &mu);
     let mut iterations = 0;
     let mut last_progress = 0;
     let mut analyses = Analyses::new(objective.n, settings.iterative_from);
@@ -238,7 +220,7 @@ pub fn maximise(
         if damped && largest < DAMPED_EXIT / DAMPING {
             damped = false;
         }
-        best_upper = best_upper.min(certificate_from(constraints, &x.g, &x.p, x.value, &new_mu));
+        best_upper = best_upper.min(certificate(constraints, &x.g, &x.p, x.value, &new_mu));
         mu = new_mu;
         let (accepted, alpha) = line_search(objective, &mut x, &du, largest);
         if accepted.is_some_and(|rose| rose) {
@@ -247,7 +229,7 @@ pub fn maximise(
         if constraints.rows.is_empty() {
             lift_sunken_states(objective, &mut x);
         }
-        let upper = certificate_from(constraints, &x.g, &x.p, x.value, &mu);
+        let upper = certificate(constraints, &x.g, &x.p, x.value, &mu);
         let nearly = best_upper - x.value <= 1e-9 * x.value.abs().max(1e-300);
         // Far from the end any visible shrinking of the gap is progress; near it (far below
         // what reports need) only halving is, so that round-off plateaus end quickly.

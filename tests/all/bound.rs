@@ -488,6 +488,13 @@ fn optimum_below_the_smallest_double_is_certified_and_follows_the_tail_law() {
     let long = bound::solve(&ring_with_appendix(150), &PairSelection::All, &settings).unwrap();
     let short = bound::solve(&ring_with_appendix(60), &PairSelection::All, &settings).unwrap();
     assert!(long.relative_gap() < 1e-10, "gap {}", long.relative_gap());
+    // One symbolic LU analysis per pattern, however many Newton steps.
+    assert!(
+        long.newton_steps > 20 && long.symbolic_analyses <= 3,
+        "{} steps, {} analyses",
+        long.newton_steps,
+        long.symbolic_analyses
+    );
     let deepest = long.log_p.iter().copied().fold(f64::INFINITY, f64::min);
     assert!(deepest < -1000.0, "deepest ln p* {deepest}");
     // Chain states beyond e^-600 carry nothing: the two chains give the same bound.

@@ -675,3 +675,47 @@ fn bordered_solve(
     let x = solve_columns(n + 1 + constraints.rows.len(), &entries, &[rhs], reuse)?.remove(0);
     Ok((x[..n].to_vec(), x[n + 1..].to_vec()))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::bench::{synthetic, Family};
+
+    /// Each Newton row, unscaled, is the derivative of the stationarity equation in `ln p`:
+    /// `A_kl = d g_k / d u_l`, checked against central differences of the gradient; rows sum
+    /// to zero (`Phi` is homogeneous of degree one).
+    #[test]
+    fn newton_rows_are_derivatives_of_the_gradient() {
+        let objective = Objective::new(&synthetic(Family::RandomChords, 7, 3));
+        let log_p: Vec<f64> = (0..7).map(|k| -1.0 - 0.7 * k as f64).collect();
+        let x = Point::new(&objective, log_p).unwrap();
+        let rows = ScaledRows::new(&objective, &x, None);
+        let mut a = [[0.0; 7]; 7];
+        for &(k, l, v) in &rows.entries {
+            a[k][l] += v / rows.inverse[k];
+        }
+        let h = 1e-6;
+        for l in 0..7 {
+            let (mut up, mut down) = (x.log_p.clone(), x.log_p.clone());
+            up[l] += h;
+            down[l] -= h;
+            let (gu, gd) = (objective.gradient(&up), objective.gradient(&down));
+            for k in 0..7 {
+                let fd = (gu[k] - gd[k]) / (2.0 * h);
+                assert!(
+                    (fd - a[k][l]).abs() < 1e-6 * (1.0 + fd.abs()),
+                    "A[{k}][{l}] = {} vs {fd}",
+                    a[k][l]
+                );
+            }
+        }
+        for (k, row) in a.iter().enumerate() {
+            let scale: f64 = row.iter().map(|v| v.abs()).sum();
+            assert!(
+                row.iter().sum::<f64>().abs() < 1e-12 * scale,
+                "row {k} sums to {}",
+                row.iter().sum::<f64>()
+            );
+        }
+    }
+}

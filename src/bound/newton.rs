@@ -143,33 +143,29 @@ impl Point {
         normalise_logs(&mut log_p);
         let p: Vec<f64> = log_p.iter().map(|l| l.exp()).collect();
         let value = objective.value(&p, &log_p);
-        if !value.is_finite() {
-            return None;
-        }
+        value
+            .is_finite()
+            .then(|| Self::with_value(objective, log_p, p, value))
+    }
+
+    /// The point whose normalised logs, probabilities and value are already known (a
+    /// line-search trial): only the gradient is computed.
+    fn with_value(objective: &Objective, log_p: Vec<f64>, p: Vec<f64>, value: f64) -> Self {
         let parts = objective.gradient_parts(&log_p);
         let g = parts.gradient();
-        Some(Self {
+        Self {
             log_p,
             p,
             value,
             parts,
             g,
-        })
+        }
     }
 
     /// Round-off of `Phi` and of its certificate here.
     fn noise(&self, objective: &Objective) -> f64 {
         objective.value_roundoff(&self.p, &self.log_p)
             + objective.flux_roundoff(&self.p, &self.log_p)
-    }
-
-    /// `Phi` here, without the gradient (for line-search trials).
-    fn value_at(objective: &Objective, log_p: &[f64]) -> (f64, f64) {
-        let p: Vec<f64> = log_p.iter().map(|l| l.exp()).collect();
-        (
-            objective.value(&p, log_p),
-            objective.value_roundoff(&p, log_p),
-        )
     }
 }
 
@@ -282,13 +278,14 @@ fn line_search(
     for _ in 0..60 {
         let mut trial: Vec<f64> = x.log_p.iter().zip(du).map(|(l, d)| l + alpha * d).collect();
         normalise_logs(&mut trial);
-        let (value, roundoff) = Point::value_at(objective, &trial);
+        // Phi and its round-off first; the gradient only for the accepted trial.
+        let p: Vec<f64> = trial.iter().map(|l| l.exp()).collect();
+        let value = objective.value(&p, &trial);
+        let roundoff = objective.value_roundoff(&p, &trial);
         if value.is_finite() && value >= x.value - 4.0 * roundoff {
             let rose = value > x.value + 4.0 * roundoff;
-            if let Some(next) = Point::new(objective, trial) {
-                *x = next;
-                return (Some(rose), alpha);
-            }
+            *x = Point::with_value(objective, trial, p, value);
+            return (Some(rose), alpha);
         }
         alpha *= 0.5;
     }

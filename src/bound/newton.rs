@@ -57,8 +57,8 @@ impl Constraints {
 /// Settings of the Newton solve.
 #[derive(Debug, Clone, Copy)]
 pub struct NewtonSettings {
-    /// Iteration limit. Default 1000 (the 10^5-state banded benchmark network certifies after
-    /// about 1000 steps; a stalled solve ends far earlier, after `STALL_ITERATIONS`).
+    /// Iteration limit. Default 1000 (the 10^5-state banded benchmark network needs 350 steps;
+    /// a stalled solve ends far earlier, after `STALL_ITERATIONS`).
     pub max_iterations: usize,
     /// Stop when the certified gap is below this fraction of `|Phi|` (plus a round-off floor).
     /// Default 1e-12 (reports require 1e-8; much below 1e-12 is round-off on large networks).

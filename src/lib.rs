@@ -9,6 +9,7 @@ pub mod bound;
 pub mod commands;
 pub mod linalg;
 pub mod model;
+pub mod numeric;
 pub mod progress;
 pub mod report;
 pub mod rng;

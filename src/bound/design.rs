@@ -28,7 +28,9 @@ impl Pathway {
         forward: f64,
         backward: f64,
     ) -> Self {
-        let work = network.energies[from] - network.energies[to] - (forward / backward).ln();
+        let work = network.energies[from]
+            - network.energies[to]
+            - crate::model::log_ratio(forward, backward);
         Self {
             from,
             to,
@@ -55,10 +57,10 @@ impl Pathway {
 pub struct Verified {
     /// Total harvesting power of baseline plus added pathways (kT per time unit).
     pub power: f64,
-    /// Round-off bound of `power`: net fluxes are differences of one-way fluxes, each known to
-    /// a relative `8 n eps` (GTH keeps probabilities to a small multiple of `n eps`), so the
-    /// power is uncertain by about `8 n eps sum_c (k+ p_a + k- p_b) |w_c|`. Fast pathways make
-    /// this large: it is the price of verifying a near-limit design in floating point.
+    /// Round-off bound of `power` ([`steady::observe`]): the cycle fluxes are differences of
+    /// one-way fluxes, each known to a relative `8 n eps`, so fast pathways whose cycles carry
+    /// work make this large: it is the price of verifying a near-limit design in floating
+    /// point.
     pub roundoff: f64,
 }
 
@@ -68,14 +70,10 @@ pub fn verify(network: &Network, pathways: &[Pathway]) -> Result<Verified, Solve
     let extra: Vec<Channel> = pathways.iter().map(Pathway::channel).collect();
     let joint = network.with_channels(&extra);
     let p = steady::solve(&joint, &SteadySettings::default())?.probabilities;
-    let traffic: f64 = joint
-        .channels
-        .iter()
-        .map(|c| (c.forward * p[c.from] + c.backward * p[c.to]) * c.work.abs())
-        .sum();
+    let observed = steady::observe(&joint, &p);
     Ok(Verified {
-        power: steady::observe(&joint, &p).power,
-        roundoff: 8.0 * joint.len() as f64 * f64::EPSILON * traffic,
+        power: observed.power,
+        roundoff: observed.power_roundoff,
     })
 }
 

@@ -342,15 +342,14 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
     let model = Model::load(path)?;
     let which = scaling_of(&request.scale)?;
     let (from, to, points) = (request.from, request.to, request.points);
-    if !(from > 0.0 && to > from && to.is_finite()) || points < 2 {
+    if !(from.is_normal() && from > 0.0 && to > from && to.is_finite()) || points < 2 {
         return Err(Error::Usage(format!(
-            "--from {from} --to {to} --points {points}: give 0 < FROM < TO and at least 2 points (the scales are log-spaced)"
+            "--from {from} --to {to} --points {points}: give 2.2e-308 <= FROM < TO (normal doubles) and at least 2 points (the scales are log-spaced)"
         )));
     }
     let u = &model.units;
     let mut rows = Vec::with_capacity(points);
-    for i in 0..points {
-        let scale = from * (to / from).powf(i as f64 / (points - 1) as f64);
+    for scale in crate::numeric::log_spaced(from, to, points) {
         let net = match which {
             None => Some(model.network.with_stored_energy_scaled(scale)),
             Some([w, d, e]) => {

@@ -618,7 +618,7 @@ fn sweep_values(over: &str, points: usize) -> Result<(SweepOver, Vec<f64>), Erro
         s.trim()
             .parse::<f64>()
             .ok()
-            .filter(|v| v.is_finite() && *v > 0.0)
+            .filter(|v| v.is_normal() && *v > 0.0)
     };
     let (Some(lo), Some(hi)) = (parse(a), parse(b)) else {
         return Err(usage("the range ends must be positive numbers"));
@@ -639,16 +639,13 @@ fn sweep_values(over: &str, points: usize) -> Result<(SweepOver, Vec<f64>), Erro
         )));
     }
     let log = quantity != SweepOver::WorkLimit || hi / lo >= 100.0;
-    let values = (0..points)
-        .map(|i| {
-            let t = i as f64 / (points - 1) as f64;
-            if log {
-                lo * (hi / lo).powf(t)
-            } else {
-                lo + (hi - lo) * t
-            }
-        })
-        .collect();
+    let values = if log {
+        crate::numeric::log_spaced(lo, hi, points)
+    } else {
+        (0..points)
+            .map(|i| lo + (hi - lo) * i as f64 / (points - 1) as f64)
+            .collect()
+    };
     Ok((quantity, values))
 }
 

@@ -18,6 +18,8 @@ use std::path::{Path, PathBuf};
 /// Default LDB consistency tolerance in kT when a transition gives both `backward` and `drive`.
 pub const DEFAULT_LDB_TOLERANCE: f64 = 1e-6;
 
+pub use crate::numeric::log_ratio;
+
 /// One channel of a network: a pair of opposite jumps between two distinct states.
 ///
 /// Energies are in kT, rates in the model's time unit. LDB holds by construction:

@@ -7,8 +7,8 @@ use super::file::{
     TransitionEntry,
 };
 use super::{
-    Channel, Completion, Environments, Model, ModelError, Network, PairSelection, PathwayDefaults,
-    TransitionInfo, DEFAULT_LDB_TOLERANCE,
+    log_ratio, Channel, Completion, Environments, Model, ModelError, Network, PairSelection,
+    PathwayDefaults, TransitionInfo, DEFAULT_LDB_TOLERANCE,
 };
 use crate::units::{EnergyUnit, TimeUnit, Units};
 use std::collections::HashMap;
@@ -286,7 +286,7 @@ fn joint_network(
                 forward: k_f,
                 backward: k_b,
                 work: 0.0,
-                drive: (k_f / k_b).ln(),
+                drive: log_ratio(k_f, k_b),
             });
             out_infos.push(TransitionInfo {
                 label: Some(format!("switch {}->{}", from.get_ref(), to.get_ref())),
@@ -501,7 +501,7 @@ fn parse_transition(
             let backward = positive_rate(ctx, b, "backward")?;
             (
                 backward,
-                (forward / backward).ln() - bias,
+                log_ratio(forward, backward) - bias,
                 Completion::DriveImplied,
             )
         }
@@ -516,9 +516,9 @@ fn parse_transition(
         (Some(b), Some(d)) => {
             let backward = positive_rate(ctx, b, "backward")?;
             let drive = finite_energy(ctx, d, units, "drive")?;
-            let mismatch = (forward / backward).ln() - (bias + drive);
+            let mismatch = log_ratio(forward, backward) - (bias + drive);
             if mismatch.abs() > tolerance {
-                return ctx.at(entry, format!("`backward` and `drive` disagree with local detailed balance by {mismatch:.6e} kT: ln(forward/backward) = {:.6} kT but E_from - E_to + drive - work = {:.6} kT", (forward / backward).ln(), bias + drive), format!("drop one of `backward` and `drive` so LDB implies it, or correct them (tolerance {tolerance:e} kT, key ldb_tolerance)"));
+                return ctx.at(entry, format!("`backward` and `drive` disagree with local detailed balance by {mismatch:.6e} kT: ln(forward/backward) = {:.6} kT but E_from - E_to + drive - work = {:.6} kT", log_ratio(forward, backward), bias + drive), format!("drop one of `backward` and `drive` so LDB implies it, or correct them (tolerance {tolerance:e} kT, key ldb_tolerance)"));
             }
             (backward, drive, Completion::BothGiven)
         }

@@ -96,6 +96,9 @@ pub struct DesignReport {
     /// Pathway sets scored.
     pub evaluated: u64,
     pub designs: Vec<RankedDesign>,
+    /// Designs left out of the ranking: their verified power is not determined by double
+    /// precision (its round-off bound covers their gain over the baseline).
+    pub undetermined_designs: u64,
 }
 
 impl RankedDesign {
@@ -144,6 +147,7 @@ impl DesignReport {
                 seed: s.seed,
             },
             evaluated: outcome.evaluated,
+            undetermined_designs: outcome.undetermined,
             designs: outcome
                 .designs
                 .iter()
@@ -208,6 +212,10 @@ impl DesignReport {
             ]);
         }
         out.push_str(&ranking.render());
+        if self.undetermined_designs > 0 {
+            out.push_str(&wrap(&format!("{} further designs are not ranked: their power is not determined by double precision (the round-off bound of the verifying steady state covers their gain over the baseline); the universal bound above is the answer at such budgets", self.undetermined_designs), "  ", 78));
+            out.push('\n');
+        }
         let mut rates = Table::new(&[
             ("rank", Align::Right),
             ("pathway", Align::Left),

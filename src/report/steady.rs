@@ -1,6 +1,6 @@
 //! The `steady` report: stationary distribution, per-transition fluxes and the power budget.
 
-use super::table::{num, percent, sci, Align, Table};
+use super::table::{bounded, num, percent, sci, Align, Table};
 use super::{csv_field, named_distribution, transition_name, StateProbability, UnitsJson};
 use crate::model::Model;
 use crate::steady::{Observables, SteadyState};
@@ -16,7 +16,10 @@ pub struct SteadyReport {
     pub states: Vec<StateProbability>,
     pub transitions: Vec<TransitionFlux>,
     pub power: f64,
+    /// Round-off bound of `power` (same unit): a figure it exceeds 1% of is not determined.
+    pub power_roundoff: f64,
     pub drive_power: f64,
+    pub drive_power_roundoff: f64,
     /// In units of k_B per time unit.
     pub entropy_production: f64,
     pub efficiency: Option<f64>,
@@ -32,6 +35,7 @@ pub struct TransitionFlux {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub label: Option<String>,
     pub flux: f64,
+    pub flux_roundoff: f64,
     pub work_rate: f64,
     pub drive_rate: f64,
 }
@@ -49,6 +53,7 @@ impl SteadyReport {
                 to: model.state_names[ch.to].clone(),
                 label: model.transitions[c].label.clone(),
                 flux: obs.fluxes[c],
+                flux_roundoff: obs.flux_roundoff[c],
                 work_rate: u.from_kt(obs.work_rates[c]),
                 drive_rate: u.from_kt(obs.drive_rates[c]),
             })
@@ -61,7 +66,9 @@ impl SteadyReport {
             states: named_distribution(model, &steady.probabilities),
             transitions,
             power: u.from_kt(obs.power),
+            power_roundoff: u.from_kt(obs.power_roundoff),
             drive_power: u.from_kt(obs.drive_power),
+            drive_power_roundoff: u.from_kt(obs.drive_power_roundoff),
             entropy_production: obs.entropy_production,
             efficiency: obs.efficiency,
             power_watts_per_molecule: u.watts(obs.power),
@@ -93,7 +100,7 @@ impl SteadyReport {
         for (c, tr) in self.transitions.iter().enumerate() {
             flows.row(vec![
                 transition_name(model, c),
-                num(tr.flux),
+                bounded(tr.flux, tr.flux_roundoff),
                 num(tr.work_rate),
                 num(tr.drive_rate),
             ]);
@@ -102,9 +109,9 @@ impl SteadyReport {
         let p = &self.units.power;
         out.push_str(&format!(
             "\n  harvesting power     {} {p}  ({:.4e} W per molecule)\n  drive power          {} {p}\n  entropy production   {} k_B/{t}\n  efficiency           {}\n",
-            num(self.power),
+            bounded(self.power, self.power_roundoff),
             self.power_watts_per_molecule,
-            num(self.drive_power),
+            bounded(self.drive_power, self.drive_power_roundoff),
             num(self.entropy_production),
             self.efficiency.map_or("n/a (no drive power)".to_string(), percent),
         ));

@@ -92,6 +92,28 @@ pub fn sci(x: f64) -> String {
     format!("{x:.5e}")
 }
 
+/// Share of a figure that its round-off bound may reach before it is no longer shown as a
+/// plain number.
+pub const DETERMINED_SHARE: f64 = 0.01;
+
+/// Whether `roundoff` leaves `value` known to [`DETERMINED_SHARE`] of itself.
+pub fn determined(value: f64, roundoff: f64) -> bool {
+    value.is_finite() && roundoff.is_finite() && roundoff <= DETERMINED_SHARE * value.abs()
+}
+
+/// `value` as [`num`] when its round-off bound is within [`DETERMINED_SHARE`] of it; otherwise
+/// it is marked: `< X (not determined)` when the bound covers the value itself, else
+/// `V +- X (not determined to 1%)`.
+pub fn bounded(value: f64, roundoff: f64) -> String {
+    if determined(value, roundoff) {
+        num(value)
+    } else if roundoff >= value.abs() || roundoff.is_nan() {
+        format!("|x| < {} (round-off)", num(roundoff))
+    } else {
+        format!("{} +- {} (not determined to 1%)", num(value), num(roundoff))
+    }
+}
+
 /// `text` broken at spaces into lines of at most `width` characters, each starting with
 /// `indent`, joined by newlines (a single word longer than the width stays whole).
 pub fn wrap(text: &str, indent: &str, width: usize) -> String {
@@ -118,6 +140,17 @@ pub fn percent(x: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn round_off_marks_undetermined_figures() {
+        assert_eq!(bounded(8.0077e-12, 1e-20), "8.0077e-12");
+        assert_eq!(bounded(8.0e-12, 2.0e-11), "|x| < 2.0000e-11 (round-off)");
+        assert_eq!(
+            bounded(1.0, 0.05),
+            "1.0000 +- 0.050000 (not determined to 1%)"
+        );
+        assert!(!determined(f64::NAN, 0.0));
+    }
 
     #[test]
     fn numbers_keep_five_significant_digits() {

@@ -173,6 +173,10 @@ pub struct Part {
     pub branches: Vec<BranchTally>,
     /// The best designs of this part, ranked, verified.
     pub designs: Vec<Found>,
+    /// Designs that reached the ranking but whose verified power is not determined by double
+    /// precision (its round-off bound covers its gain over the baseline): left out of it.
+    #[serde(default)]
+    pub undetermined: u64,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -630,15 +634,18 @@ impl<'a> Searcher<'a> {
             Strategy::Exhaustive => self.exhaustive(&singles, shard, observer, keeper)?,
             Strategy::Beam => self.beam(&singles, observer),
         };
-        let designs = ranking
-            .designs
-            .into_iter()
-            .map(|mut d| {
-                let v = verify(self.network, &d.pathways(self.network))?;
-                d.verified = Some((v.power, v.roundoff));
-                Ok(d)
-            })
-            .collect::<Result<Vec<_>, SolveError>>()?;
+        let baseline = verify(self.network, &[])?;
+        let mut designs = Vec::with_capacity(ranking.designs.len());
+        let mut undetermined = 0;
+        for mut d in ranking.designs {
+            let v = verify(self.network, &d.pathways(self.network))?;
+            d.verified = Some((v.power, v.roundoff));
+            if determined_gain(&baseline, &v) {
+                designs.push(d);
+            } else {
+                undetermined += 1;
+            }
+        }
         Ok(Part {
             fingerprint: fingerprint(self.network),
             settings: self.settings,
@@ -650,6 +657,7 @@ impl<'a> Searcher<'a> {
             single_scorings,
             branches,
             designs,
+            undetermined,
         })
     }
 
@@ -886,6 +894,18 @@ pub struct Outcome {
     /// Steady-state evaluations spent.
     pub scorings: u64,
     pub designs: Vec<Found>,
+    /// Ranked designs left out because their power is not determined by double precision.
+    pub undetermined: u64,
+}
+
+/// Whether a verified design's gain over the baseline is larger than the round-off bounds of
+/// both powers: otherwise its power says nothing and it must not be ranked.
+fn determined_gain(
+    baseline: &crate::bound::design::Verified,
+    design: &crate::bound::design::Verified,
+) -> bool {
+    let gain = design.power - baseline.power;
+    gain.is_finite() && gain > design.roundoff + baseline.roundoff
 }
 
 /// Combines the parts of a sharded search into exactly the outcome of one run.
@@ -934,5 +954,6 @@ pub fn merge(parts: Vec<Part>) -> Result<Outcome, SearchError> {
         pruned: branches.iter().map(|b| b.pruned).sum(),
         scorings: first.single_scorings + branches.iter().map(|b| b.scorings).sum::<u64>(),
         designs: ranking.designs,
+        undetermined: parts.iter().map(|p| p.undetermined).sum(),
     })
 }

@@ -482,3 +482,54 @@ fn design_flags_are_checked() {
         assert!(out.stdout.is_empty());
     }
 }
+
+#[test]
+fn huge_caps_never_rank_a_design_above_the_bound() {
+    // At caps of 1e12..1e20 per second the added rates dwarf the walker's own (<= 1e3), so the
+    // verifying steady state can only resolve part of the power: every ranked design must lie
+    // below the certified bound within its own round-off bound, and its gain over the baseline
+    // must exceed that bound (otherwise it is reported as undetermined, not ranked).
+    for cap in ["1e12", "1e16", "1e20"] {
+        let out = run(&[
+            "design",
+            "problems/walker.toml",
+            "--rate-cap",
+            cap,
+            "--max-pathways",
+            "1",
+            "--json",
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let upper = v["bound"]["certified_upper"].as_f64().unwrap();
+        let baseline = v["baseline_power"].as_f64().unwrap();
+        let ranked = v["designs"].as_array().unwrap();
+        let left_out = v["undetermined_designs"].as_u64().unwrap();
+        assert_eq!(
+            ranked.len() as u64 + left_out,
+            6,
+            "cap {cap}: the walker has 6 pairs"
+        );
+        for d in ranked {
+            let (power, roundoff) = (
+                d["achieved_power"].as_f64().unwrap(),
+                d["achieved_power_roundoff"].as_f64().unwrap(),
+            );
+            assert!(
+                power - roundoff <= upper,
+                "cap {cap}: {power} +- {roundoff} above {upper}"
+            );
+            assert!(
+                power - baseline > roundoff,
+                "cap {cap}: gain within round-off ranked"
+            );
+            assert!(
+                d["fraction_of_headroom"].as_f64().unwrap() <= 1.0 + roundoff / (upper - baseline)
+            );
+        }
+    }
+}

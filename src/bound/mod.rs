@@ -204,9 +204,19 @@ pub fn solve(
             network.max_rate()
         )));
     }
+    // The baseline network is itself a design (no pathway added), so a sound certificate can
+    // never fall below its power; the baseline's power is taken from the steady-state observables
+    // (fluxes from conservation, a stated round-off) rather than from Phi's terms.
+    let observed = crate::steady::observe(network, &baseline);
+    if certified.upper + noise < observed.power - observed.power_roundoff {
+        return Err(SolveError::Uncertified(format!(
+            "the certified upper value {:.6e} fell below the baseline's own power {:.6e} (+- {:.1e}): round-off dominates this network's bound program, so no value is given; rescale the rates or energies that span many decades, or restrict the added pathways with --pairs",
+            certified.upper, observed.power, observed.power_roundoff
+        )));
+    }
     let (benefit, maintenance) = objective.split(&certified.p, &certified.log_p, &log_baseline);
     Ok(Bound {
-        baseline_power: objective.work(&baseline),
+        baseline_power: observed.power,
         baseline,
         power: certified.value,
         certified_upper: certified.upper,

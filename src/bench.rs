@@ -194,7 +194,7 @@ pub fn time_bound(
             // A bound the solver cannot certify is a result of the benchmark, not its end.
             let b = match result {
                 Ok(b) => b,
-                Err(SolveError::Uncertified(reason)) => {
+                Err(SolveError::Uncertified(reason) | SolveError::NotDetermined(reason)) => {
                     rows.push(BoundTiming {
                         family,
                         states: n,

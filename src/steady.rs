@@ -13,6 +13,7 @@
 
 use crate::linalg::SparseLu;
 use crate::model::{log_ratio, Channel, Network};
+use crate::numeric::{DoubleDouble, DOUBLE_DOUBLE_EPSILON};
 use faer::sparse::Triplet;
 use faer::Mat;
 
@@ -27,6 +28,9 @@ pub enum SolveError {
     Conic(String),
     #[error("the bound could not be certified: {0}")]
     Uncertified(String),
+    /// The bound program's round-off, not the optimisation, keeps the gap above the limit.
+    #[error("the bound is not determined by double precision: {0}")]
+    NotDetermined(String),
 }
 
 /// How the steady state was computed.
@@ -158,6 +162,68 @@ pub fn gth_rates(a: &mut [f64], n: usize) -> Vec<f64> {
 fn normalise(p: &mut [f64]) {
     let total: f64 = p.iter().sum();
     p.iter_mut().for_each(|x| *x /= total);
+}
+
+/// Largest network whose chord fluxes [`observe`] takes from a double-double GTH solve: such a
+/// solve costs about 20 times a double one (O(n^3)), negligible up to here, and it lets a net
+/// flux that is 1e-16 of its one-way fluxes still come out to about 1e-14 relative.
+pub const REFINED_LIMIT: usize = 64;
+
+/// Smallest probability or rate admitted to the double-double solve: below about 1e-290 its
+/// low words underflow and the stated accuracy would not hold.
+const REFINED_FLOOR: f64 = 1e-280;
+
+/// Componentwise relative accuracy of the double-double GTH probabilities: GTH is subtraction
+/// free, and its proven componentwise error bound grows like n^3 unit round-offs (O'Cinneide,
+/// Numer. Math. 65, 109 (1993); the constant 8 is ours, generous).
+fn refined_accuracy(n: usize) -> f64 {
+    8.0 * (n as f64).powi(3) * DOUBLE_DOUBLE_EPSILON
+}
+
+/// Dense GTH in double-double arithmetic (the same elimination as [`gth_rates`]), or `None`
+/// where some rate or probability is too small for double-double to keep its accuracy.
+fn gth_double_double(network: &Network) -> Option<Vec<DoubleDouble>> {
+    let n = network.len();
+    let tiny = |x: f64| !(x.is_finite() && x >= REFINED_FLOOR);
+    if network
+        .channels
+        .iter()
+        .any(|c| tiny(c.forward) || tiny(c.backward))
+    {
+        return None;
+    }
+    let mut a = vec![DoubleDouble::default(); n * n];
+    for c in &network.channels {
+        a[c.from * n + c.to] = a[c.from * n + c.to] + DoubleDouble::from_f64(c.forward);
+        a[c.to * n + c.from] = a[c.to * n + c.from] + DoubleDouble::from_f64(c.backward);
+    }
+    let mut exit = vec![DoubleDouble::default(); n];
+    for k in (1..n).rev() {
+        let s = a[k * n..k * n + k]
+            .iter()
+            .fold(DoubleDouble::default(), |t, x| t + *x);
+        exit[k] = s;
+        for i in 0..k {
+            if a[i * n + k].hi == 0.0 {
+                continue;
+            }
+            let f = a[i * n + k] / s;
+            for j in 0..k {
+                if a[k * n + j].hi != 0.0 {
+                    a[i * n + j] = a[i * n + j] + f * a[k * n + j];
+                }
+            }
+        }
+    }
+    let mut p = vec![DoubleDouble::default(); n];
+    p[0] = DoubleDouble::from_f64(1.0);
+    for k in 1..n {
+        let inflow = (0..k).fold(DoubleDouble::default(), |t, i| t + p[i] * a[i * n + k]);
+        p[k] = inflow / exit[k];
+    }
+    let total = p.iter().fold(DoubleDouble::default(), |t, x| t + *x);
+    let p: Vec<DoubleDouble> = p.iter().map(|x| *x / total).collect();
+    p.iter().all(|x| !tiny(x.hi)).then_some(p)
 }
 
 /// Per-state jump lists used by the sparse path: (neighbour, rate into this state from it)
@@ -412,6 +478,52 @@ impl FastTree {
             parent_channel,
         }
     }
+
+    /// The other end of the tree channel from `s` to its parent.
+    fn parent(&self, network: &Network, s: usize) -> usize {
+        let ch = &network.channels[self.parent_channel[s]];
+        if ch.from == s {
+            ch.to
+        } else {
+            ch.from
+        }
+    }
+
+    /// For each state but the root, whether its parent channel is a bridge (no chord leaves its
+    /// subtree), so that conservation makes its net flux exactly zero. Subtrees are numbered as
+    /// intervals of a depth-first preorder; a chord leaves the subtree of `s` when an end inside
+    /// it sees an end outside the interval.
+    fn bridges(&self, network: &Network) -> Vec<bool> {
+        let n = network.len();
+        let mut size = vec![1usize; n];
+        for &s in self.order.iter().skip(1).rev() {
+            let parent = self.parent(network, s);
+            size[parent] += size[s];
+        }
+        let (mut pre, mut next_child) = (vec![0usize; n], vec![1usize; n]);
+        for &s in self.order.iter().skip(1) {
+            let parent = self.parent(network, s);
+            pre[s] = pre[parent] + next_child[parent];
+            next_child[parent] += size[s];
+        }
+        let (mut low, mut high) = (pre.clone(), pre.clone());
+        for (c, ch) in network.channels.iter().enumerate() {
+            if !self.in_tree[c] {
+                for (a, b) in [(ch.from, ch.to), (ch.to, ch.from)] {
+                    low[a] = low[a].min(pre[b]);
+                    high[a] = high[a].max(pre[b]);
+                }
+            }
+        }
+        let mut bridge = vec![false; n];
+        for &s in self.order.iter().skip(1).rev() {
+            bridge[s] = low[s] >= pre[s] && high[s] < pre[s] + size[s];
+            let parent = self.parent(network, s);
+            low[parent] = low[parent].min(low[s]);
+            high[parent] = high[parent].max(high[s]);
+        }
+        bridge
+    }
 }
 
 /// Fluxes, powers and entropy production of `network` in its steady state `p`.
@@ -434,39 +546,81 @@ pub fn observe(network: &Network, p: &[f64]) -> Observables {
         .map(|c| c.forward * p[c.from] + c.backward * p[c.to])
         .collect();
     let tree = FastTree::build(network, &traffic);
-    let mut fluxes = vec![0.0; m];
-    let mut flux_roundoff = vec![0.0; m];
-    // Net chord outflow of each state, its round-off and its magnitude.
+    // Chord fluxes from a double-double steady state where the network is small enough: the
+    // cancellation of one-way fluxes then costs digits beyond double precision only.
+    let refined = (n <= REFINED_LIMIT)
+        .then(|| gth_double_double(network))
+        .flatten();
+    let chord_flux = |ch: &Channel, traffic: f64| match &refined {
+        Some(q) => (
+            q[ch.from].mul_f64(ch.forward) - q[ch.to].mul_f64(ch.backward),
+            traffic * (refined_accuracy(n) + 2.0 * DOUBLE_DOUBLE_EPSILON),
+        ),
+        None => (
+            DoubleDouble::from_f64(ch.flux(p)),
+            traffic * (accuracy + f64::EPSILON),
+        ),
+    };
+    // Net fluxes in double-double (rounded to doubles at the end), so sums over chords lose
+    // nothing to cancellation; errors are carried beside them.
+    let mut exact_flux = vec![DoubleDouble::default(); m];
+    let mut flux_error = vec![0.0; m];
+    // Net chord outflow of each state, its error bound and its magnitude.
     let (mut outflow, mut outflow_error, mut outflow_size) =
-        (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
+        (vec![DoubleDouble::default(); n], vec![0.0; n], vec![0.0; n]);
     for (c, ch) in network.channels.iter().enumerate() {
         if tree.in_tree[c] {
             continue;
         }
-        let j = ch.flux(p);
-        let error = traffic[c] * (accuracy + f64::EPSILON);
-        fluxes[c] = j;
-        flux_roundoff[c] = error;
-        for (s, sign) in [(ch.from, 1.0), (ch.to, -1.0)] {
-            outflow[s] += sign * j;
+        let (j, error) = chord_flux(ch, traffic[c]);
+        exact_flux[c] = j;
+        flux_error[c] = error;
+        for (s, j) in [(ch.from, j), (ch.to, -j)] {
+            outflow[s] = outflow[s] + j;
             outflow_error[s] += error;
-            outflow_size[s] += j.abs();
+            outflow_size[s] += j.hi.abs();
         }
     }
+    let bridge = tree.bridges(network);
     for &s in tree.order.iter().skip(1).rev() {
         let c = tree.parent_channel[s];
         let ch = &network.channels[c];
-        let parent = if ch.from == s { ch.to } else { ch.from };
-        // Whatever leaves the subtree of `s` by chords returns through its parent channel.
-        let through = -outflow[s];
-        fluxes[c] = if ch.from == s { through } else { -through };
-        flux_roundoff[c] = outflow_error[s] + n as f64 * f64::EPSILON * outflow_size[s];
-        outflow[parent] += outflow[s];
+        let parent = tree.parent(network, s);
+        // Whatever leaves the subtree of `s` by chords returns through its parent channel, so
+        // its net flux from `s` to the parent is minus the subtree's chord outflow. Where the
+        // channel's own one-way fluxes are known better than that sum (a slow tree channel
+        // below fast chords that nearly cancel), the direct value is taken instead, and it
+        // stands for the subtree's outflow further up.
+        let toward_parent = |j: DoubleDouble| if ch.from == s { j } else { -j };
+        if bridge[s] {
+            // Everything that leaves the subtree by chords comes back into it by chords.
+            (outflow[s], outflow_error[s], outflow_size[s]) = (DoubleDouble::default(), 0.0, 0.0);
+        } else {
+            let conserved_error =
+                outflow_error[s] + 2.0 * n as f64 * DOUBLE_DOUBLE_EPSILON * outflow_size[s];
+            let (direct, direct_error) = chord_flux(ch, traffic[c]);
+            if direct_error < conserved_error {
+                let through = toward_parent(direct);
+                (outflow[s], outflow_error[s], outflow_size[s]) =
+                    (-through, direct_error, through.hi.abs());
+            } else {
+                outflow_error[s] = conserved_error;
+            }
+        }
+        exact_flux[c] = toward_parent(-outflow[s]);
+        flux_error[c] = outflow_error[s];
+        outflow[parent] = outflow[parent] + outflow[s];
         outflow_error[parent] += outflow_error[s];
         outflow_size[parent] += outflow_size[s];
     }
-    let work = cycle_sum(network, &tree, &fluxes, &flux_roundoff, |c| c.work);
-    let drive = cycle_sum(network, &tree, &fluxes, &flux_roundoff, |c| c.drive);
+    let fluxes: Vec<f64> = exact_flux.iter().map(|j| j.hi).collect();
+    let flux_roundoff: Vec<f64> = flux_error
+        .iter()
+        .zip(&fluxes)
+        .map(|(e, j)| e + 0.5 * f64::EPSILON * j.abs())
+        .collect();
+    let work = cycle_sum(network, &tree, &exact_flux, &flux_error, |c| c.work);
+    let drive = cycle_sum(network, &tree, &exact_flux, &flux_error, |c| c.drive);
     let entropy_production = drive.value - work.value;
     let (mut direct_sigma, mut scale) = (0.0, 0.0);
     for (c, ch) in network.channels.iter().enumerate() {
@@ -516,17 +670,19 @@ struct Bounded {
 
 /// `sum_c J_c label_c` over all channels, evaluated as `sum_chords J_c (label_c + phi_from -
 /// phi_to)` with `phi` the label accumulated along the tree from the root (the tree channels'
-/// share telescopes into the chords' cycles because the fluxes conserve probability).
+/// share telescopes into the chords' cycles because the fluxes conserve probability). Labels
+/// are exact doubles and every sum is in double-double, so the only error that matters is the
+/// chord fluxes' own (`flux_error`).
 fn cycle_sum(
     network: &Network,
     tree: &FastTree,
-    fluxes: &[f64],
-    flux_roundoff: &[f64],
+    fluxes: &[DoubleDouble],
+    flux_error: &[f64],
     label: impl Fn(&Channel) -> f64,
 ) -> Bounded {
     let n = network.len();
     // phi[s]: label gained along the tree path root -> s; size[s]: sum of |label| on it.
-    let (mut phi, mut size) = (vec![0.0; n], vec![0.0; n]);
+    let (mut phi, mut size) = (vec![DoubleDouble::default(); n], vec![0.0; n]);
     for &s in tree.order.iter().skip(1) {
         let ch = &network.channels[tree.parent_channel[s]];
         let (parent, gain) = if ch.to == s {
@@ -534,24 +690,28 @@ fn cycle_sum(
         } else {
             (ch.to, -label(ch))
         };
-        phi[s] = phi[parent] + gain;
+        phi[s] = phi[parent] + DoubleDouble::from_f64(gain);
         size[s] = size[parent] + gain.abs();
     }
-    let (mut value, mut roundoff, mut terms) = (0.0, 0.0, 0.0);
+    let (mut value, mut roundoff, mut terms) = (DoubleDouble::default(), 0.0, 0.0);
     for (c, ch) in network.channels.iter().enumerate() {
         if tree.in_tree[c] {
             continue;
         }
-        let per_turn = label(ch) + phi[ch.from] - phi[ch.to];
+        let per_turn = DoubleDouble::from_f64(label(ch)) + phi[ch.from] - phi[ch.to];
         let turn_size = label(ch).abs() + size[ch.from] + size[ch.to];
         let term = fluxes[c] * per_turn;
-        value += term;
-        terms += term.abs();
-        roundoff += flux_roundoff[c] * per_turn.abs()
-            + fluxes[c].abs() * 2.0 * n as f64 * f64::EPSILON * turn_size;
+        value = value + term;
+        terms += term.hi.abs();
+        roundoff += flux_error[c] * per_turn.hi.abs()
+            + fluxes[c].hi.abs() * 2.0 * n as f64 * DOUBLE_DOUBLE_EPSILON * turn_size;
     }
-    roundoff += network.channels.len() as f64 * f64::EPSILON * terms;
-    Bounded { value, roundoff }
+    roundoff += 2.0 * network.channels.len() as f64 * DOUBLE_DOUBLE_EPSILON * terms
+        + 0.5 * f64::EPSILON * value.hi.abs();
+    Bounded {
+        value: value.hi,
+        roundoff,
+    }
 }
 
 #[cfg(test)]

@@ -38,8 +38,9 @@ pub struct Channel {
 
 impl Channel {
     /// The channel whose backward rate follows from LDB:
-    /// `backward = forward exp(-(E_from - E_to + drive - work))` (energies in kT), computed in
-    /// the log domain. The caller checks that the result is representable.
+    /// `backward = forward exp(-(E_from - E_to + drive - work))` (energies in kT), in the log
+    /// domain only where the product leaves the double range. The caller checks that the result
+    /// is representable.
     pub fn balanced(
         energies: &[f64],
         from: usize,
@@ -48,7 +49,15 @@ impl Channel {
         work: f64,
         drive: f64,
     ) -> Self {
-        let backward = (forward.ln() - (energies[from] - energies[to] + drive - work)).exp();
+        // forward * exp(-x) rounds twice, and gives exactly `forward` where the labels balance
+        // (x = 0); the log form is kept for products that leave the double range.
+        let exponent = -(energies[from] - energies[to] + drive - work);
+        let direct = forward * exponent.exp();
+        let backward = if direct.is_normal() {
+            direct
+        } else {
+            (forward.ln() + exponent).exp()
+        };
         Self {
             from,
             to,

@@ -2,7 +2,7 @@
 //! optimal distribution beside the baseline, the attaining design, its speed table, and the
 //! rate-capped design when a cap is given.
 
-use super::table::{num, percent, wrap, Align, Table};
+use super::table::{bounded, num, percent, wrap, Align, Table};
 use super::{named_distribution, named_log_distribution, StateProbability, UnitsJson};
 use crate::bound::design::VerifiedDesign;
 use crate::bound::{closed_form, Bound};
@@ -12,8 +12,12 @@ use serde::Serialize;
 #[derive(Debug, Clone, Serialize)]
 pub struct BoundNumbers {
     pub power: f64,
+    /// Round-off bound of `power` (already included in `certified_upper`).
+    pub power_roundoff: f64,
     pub certified_upper: f64,
     pub headroom: f64,
+    /// Round-off bound of `headroom` (the bound's and the baseline power's together).
+    pub headroom_roundoff: f64,
     pub relative_gap: f64,
 }
 
@@ -22,8 +26,10 @@ impl BoundNumbers {
     pub fn of(bound: &Bound, units: &crate::units::Units) -> Self {
         Self {
             power: units.from_kt(bound.power),
+            power_roundoff: units.from_kt(bound.roundoff),
             certified_upper: units.from_kt(bound.certified_upper),
             headroom: units.from_kt(bound.headroom()),
+            headroom_roundoff: units.from_kt(bound.roundoff + bound.baseline_roundoff),
             relative_gap: bound.relative_gap(),
         }
     }
@@ -92,6 +98,8 @@ pub struct BoundReport {
     pub pairs: String,
     pub route: &'static str,
     pub baseline_power: f64,
+    /// Round-off bound of `baseline_power`.
+    pub baseline_power_roundoff: f64,
     pub bound: BoundNumbers,
     pub benefit: f64,
     pub maintenance_cost: f64,
@@ -202,6 +210,7 @@ impl BoundReport {
             pairs: describe_pairs(model, pairs),
             route: bound.route,
             baseline_power: u.from_kt(bound.baseline_power),
+            baseline_power_roundoff: u.from_kt(bound.baseline_roundoff),
             bound: BoundNumbers::of(bound, u),
             benefit: u.from_kt(bound.benefit),
             maintenance_cost: u.from_kt(bound.maintenance),
@@ -234,11 +243,11 @@ impl BoundReport {
         );
         out.push_str(&format!(
             "  baseline power       {} {p}\n  bound                {} {p}\n  certified upper      {} {p}  (relative gap {:.1e})\n  headroom             {} {p}\n{}  benefit at optimum   {} {p}, minus maintenance cost {}\n  solved by            {}\n\n",
-            num(self.baseline_power),
-            num(self.bound.power),
+            bounded(self.baseline_power, self.baseline_power_roundoff),
+            bounded(self.bound.power, self.bound.power_roundoff),
             num(self.bound.certified_upper),
             self.bound.relative_gap,
-            num(self.bound.headroom),
+            bounded(self.bound.headroom, self.bound.headroom_roundoff),
             self.closed_form_lines(),
             num(self.benefit),
             num(self.maintenance_cost),

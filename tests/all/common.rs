@@ -93,3 +93,17 @@ pub fn network_strategy(max: usize) -> impl Strategy<Value = Network> {
         })
     })
 }
+
+/// The certified bound of `net`, or `None` when the solver reports that round-off, not the
+/// optimisation, decides it (an honest refusal: property tests reject such cases, and
+/// proptest fails a test that rejects too many).
+pub fn certified_bound(
+    net: &Network,
+    settings: &ergopath::bound::BoundSettings,
+) -> Option<ergopath::bound::Bound> {
+    match ergopath::bound::solve(net, &ergopath::model::PairSelection::All, settings) {
+        Ok(b) => Some(b),
+        Err(ergopath::steady::SolveError::NotDetermined(_)) => None,
+        Err(e) => panic!("{e}"),
+    }
+}

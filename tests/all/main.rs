@@ -6,6 +6,7 @@ mod corpus;
 mod design;
 mod environment;
 mod errors;
+mod exact_reference;
 mod extremes;
 mod first_use;
 mod invariants;

@@ -167,7 +167,7 @@ fn resolve_budget(model: &Model, flags: &BudgetFlags) -> Result<Budget, Error> {
             model.units.energy.name()
         )));
     }
-    Ok(budget)
+    Ok(budget.within_ceiling(crate::search::rate_ceiling(&model.network)))
 }
 
 /// The candidate pathways of a selection: one per allowed pair or, environment-blind, one per

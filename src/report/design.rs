@@ -17,6 +17,9 @@ pub struct BudgetJson {
     pub rate_cap: Option<f64>,
     pub total_rate: Option<f64>,
     pub work_limit: Option<f64>,
+    /// Largest added rate searched ([`crate::search::rate_ceiling`]): a larger cap or total rate
+    /// was lowered to it.
+    pub rate_ceiling: f64,
 }
 
 impl BudgetJson {
@@ -26,7 +29,16 @@ impl BudgetJson {
             rate_cap: budget.rate_cap,
             total_rate: budget.total_rate,
             work_limit: budget.work_limit.map(|w| model.units.from_kt(w)),
+            rate_ceiling: crate::search::rate_ceiling(&model.network),
         }
+    }
+
+    /// Whether a cap or total rate sits at the ceiling (was lowered to it).
+    fn at_ceiling(&self) -> bool {
+        [self.rate_cap, self.total_rate]
+            .iter()
+            .flatten()
+            .any(|&r| r >= self.rate_ceiling)
     }
 
     /// `up to 2 pathways, each rate <= 1000 /s, ...`.
@@ -49,7 +61,15 @@ impl BudgetJson {
         if let Some(w) = self.work_limit {
             parts.push(format!("|work per jump| <= {} {}", num(w), units.energy));
         }
-        parts.join(", ")
+        let mut text = parts.join(", ");
+        if self.at_ceiling() {
+            text.push_str(&format!(
+                " (a larger cap is lowered to {} /{}, 10^12 times the fastest baseline rate: beyond it a design's power is not determined by double precision, and the universal bound is the answer)",
+                num(self.rate_ceiling),
+                units.time
+            ));
+        }
+        text
     }
 }
 
@@ -213,7 +233,7 @@ impl DesignReport {
         }
         out.push_str(&ranking.render());
         if self.undetermined_designs > 0 {
-            out.push_str(&wrap(&format!("{} further designs are not ranked: their power is not determined by double precision (the round-off bound of the verifying steady state covers their gain over the baseline); the universal bound above is the answer at such budgets", self.undetermined_designs), "  ", 78));
+            out.push_str(&wrap(&format!("{} further designs are not ranked: their power is not determined by double precision (the round-off bound of the verifying steady state covers their gain over the baseline)", self.undetermined_designs), "  ", 78));
             out.push('\n');
         }
         let mut rates = Table::new(&[

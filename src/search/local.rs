@@ -20,6 +20,11 @@ const TOTAL_RATE_SHARPNESS: f64 = 64.0;
 /// L-BFGS iterations per start.
 const MAX_ITERATIONS: u64 = 120;
 
+/// Power evaluations per start, line searches included: a bound on the work of one start
+/// whatever the line search does (on a 3-state ring with a cap of 1e308, rates near the top
+/// of the double range once kept the More-Thuente search busy for minutes).
+const MAX_EVALUATIONS: usize = 40 * MAX_ITERATIONS as usize;
+
 fn softplus(x: f64) -> f64 {
     if x > 30.0 {
         x
@@ -177,20 +182,38 @@ struct Problem<'a> {
     scale: f64,
     scorings: &'a AtomicUsize,
     cache: RefCell<Option<(Vec<f64>, Evaluation)>>,
+    /// Evaluations so far, and the best finite power seen with its parameters.
+    evaluations: std::cell::Cell<usize>,
+    best_seen: &'a RefCell<Option<(Vec<f64>, f64)>>,
 }
 
 impl Problem<'_> {
-    fn evaluation(&self, theta: &[f64]) -> Evaluation {
+    /// The evaluation at `theta`, or an error once the evaluation budget is spent (which ends
+    /// the optimiser's run; the best point seen is kept in `best_seen`).
+    fn evaluation(&self, theta: &[f64]) -> Result<Evaluation, ArgminError> {
         if let Some((at, eval)) = self.cache.borrow().as_ref() {
             if at == theta {
-                return eval.clone();
+                return Ok(eval.clone());
             }
         }
+        if self.evaluations.get() >= MAX_EVALUATIONS {
+            return Err(ArgminError::msg("evaluation budget of this start spent"));
+        }
+        self.evaluations.set(self.evaluations.get() + 1);
         self.scorings.fetch_add(1, Ordering::Relaxed);
         let log_rates = self.layout.expand(&self.map.log_rates(theta));
         let eval = self.evaluator.evaluate(&self.pairs, &log_rates, true);
+        if eval.power.is_finite()
+            && self
+                .best_seen
+                .borrow()
+                .as_ref()
+                .is_none_or(|(_, best)| eval.power > *best)
+        {
+            *self.best_seen.borrow_mut() = Some((theta.to_vec(), eval.power));
+        }
         *self.cache.borrow_mut() = Some((theta.to_vec(), eval.clone()));
-        eval
+        Ok(eval)
     }
 }
 
@@ -198,7 +221,7 @@ impl CostFunction for Problem<'_> {
     type Param = Vec<f64>;
     type Output = f64;
     fn cost(&self, theta: &Self::Param) -> Result<f64, ArgminError> {
-        let power = self.evaluation(theta).power;
+        let power = self.evaluation(theta)?.power;
         Ok(if power.is_finite() {
             -(power - self.baseline) / self.scale
         } else {
@@ -211,14 +234,20 @@ impl Gradient for Problem<'_> {
     type Param = Vec<f64>;
     type Gradient = Vec<f64>;
     fn gradient(&self, theta: &Self::Param) -> Result<Vec<f64>, ArgminError> {
-        let eval = self.evaluation(theta);
+        let eval = self.evaluation(theta)?;
         let by_rate = self.layout.collapse(&eval.gradient.unwrap_or_default());
-        Ok(self
+        let gradient: Vec<f64> = self
             .map
             .pull_back(theta, &by_rate)
             .into_iter()
             .map(|g| -g / self.scale)
-            .collect())
+            .collect();
+        if gradient.iter().all(|g| g.is_finite()) {
+            Ok(gradient)
+        } else {
+            // A step into rates where the adjoint overflows ends this start's run.
+            Err(ArgminError::msg("non-finite gradient"))
+        }
     }
 }
 
@@ -241,6 +270,7 @@ pub fn maximise(
     let start_power = evaluator
         .evaluate(&pairs, &layout.expand(&map.log_rates(&start)), false)
         .power;
+    let best_seen = RefCell::new(None);
     let problem = Problem {
         evaluator,
         map,
@@ -250,6 +280,8 @@ pub fn maximise(
         scale: scale.max(f64::MIN_POSITIVE),
         scorings,
         cache: RefCell::new(None),
+        evaluations: std::cell::Cell::new(0),
+        best_seen: &best_seen,
     };
     scorings.fetch_add(1, Ordering::Relaxed);
     let mut best = LocalBest {
@@ -272,13 +304,12 @@ pub fn maximise(
     let outcome = Executor::new(problem, solver)
         .configure(|state| state.param(start).max_iters(MAX_ITERATIONS))
         .run();
-    // A failed line search still leaves the best point seen; keep it if it improves.
-    if let Ok(result) = outcome {
-        if let Some(theta) = result.state.best_param {
-            let power = baseline - result.state.best_cost * scale;
-            if power.is_finite() && power > best.power {
-                best = LocalBest { theta, power };
-            }
+    // Whether the run ended normally, by a failed line search or by the evaluation budget,
+    // the best point evaluated is kept if it improves on the start.
+    drop(outcome);
+    if let Some((theta, power)) = best_seen.borrow_mut().take() {
+        if power > best.power {
+            best = LocalBest { theta, power };
         }
     }
     best

@@ -489,7 +489,7 @@ fn huge_caps_never_rank_a_design_above_the_bound() {
     // verifying steady state can only resolve part of the power: every ranked design must lie
     // below the certified bound within its own round-off bound, and its gain over the baseline
     // must exceed that bound (otherwise it is reported as undetermined, not ranked).
-    for cap in ["1e12", "1e16", "1e20"] {
+    for cap in ["1e12", "1e16", "1e20", "1e100", "1e300", "1e308"] {
         let out = run(&[
             "design",
             "problems/walker.toml",
@@ -509,6 +509,23 @@ fn huge_caps_never_rank_a_design_above_the_bound() {
         let baseline = v["baseline_power"].as_f64().unwrap();
         let ranked = v["designs"].as_array().unwrap();
         let left_out = v["undetermined_designs"].as_u64().unwrap();
+        // Caps beyond 1e12 times the fastest baseline rate (walker: 2270 /s) are lowered to it.
+        let (searched, ceiling) = (
+            v["budget"]["rate_cap"].as_f64().unwrap(),
+            v["budget"]["rate_ceiling"].as_f64().unwrap(),
+        );
+        assert!(
+            searched <= ceiling && close(ceiling, 2.2702e15, 1e-4, 0.0),
+            "cap {cap}: searched at {searched}, ceiling {ceiling}"
+        );
+        let powers: Vec<f64> = ranked
+            .iter()
+            .map(|d| d["achieved_power"].as_f64().unwrap())
+            .collect();
+        assert!(
+            powers.windows(2).all(|w| w[0] >= w[1]),
+            "cap {cap}: ranks out of order of verified power: {powers:?}"
+        );
         assert_eq!(
             ranked.len() as u64 + left_out,
             6,
@@ -532,4 +549,50 @@ fn huge_caps_never_rank_a_design_above_the_bound() {
             );
         }
     }
+}
+
+#[test]
+fn extreme_budgets_end_promptly_and_say_what_they_did() {
+    // A 3-state ring (invented numbers): a cap of 1e308 once kept the line search busy for
+    // minutes; it is now searched at the ceiling and reaches the universal bound, and a total
+    // rate of 1e-310 per second adds nothing that double precision can resolve.
+    let dir = crate::common::scratch("extreme-budgets");
+    let file = dir.join("ring3.toml");
+    std::fs::write(
+        &file,
+        "title = \"three-state ring\"\nenergy_unit = \"kT\"\ntime_unit = \"s\"\n[[state]]\nname = \"a\"\n[[state]]\nname = \"b\"\n[[state]]\nname = \"c\"\n[[transition]]\nfrom = \"a\"\nto = \"b\"\nforward = 10\ndrive = 3\nwork = 1\n[[transition]]\nfrom = \"b\"\nto = \"c\"\nforward = 5\nbackward = 2\n[[transition]]\nfrom = \"c\"\nto = \"a\"\nforward = 1\nbackward = 1\n",
+    )
+    .unwrap();
+    let path = file.to_str().unwrap();
+    let big = run(&["design", path, "--rate-cap", "1e308", "--json"]);
+    assert!(
+        big.status.success(),
+        "{}",
+        String::from_utf8_lossy(&big.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&big.stdout).unwrap();
+    let upper = v["bound"]["certified_upper"].as_f64().unwrap();
+    let best = &v["designs"][0];
+    let (power, roundoff) = (
+        best["achieved_power"].as_f64().unwrap(),
+        best["achieved_power_roundoff"].as_f64().unwrap(),
+    );
+    assert!(
+        power - roundoff <= upper,
+        "{power} +- {roundoff} above {upper}"
+    );
+    // At the ceiling (1e13 /s) the best pair of pathways reaches the bound to 1e-3.
+    assert!(
+        best["fraction_of_headroom"].as_f64().unwrap() > 0.999,
+        "{best}"
+    );
+    let small = run(&["design", path, "--total-rate", "1e-310", "--json"]);
+    assert!(
+        small.status.success(),
+        "{}",
+        String::from_utf8_lossy(&small.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&small.stdout).unwrap();
+    assert_eq!(v["designs"].as_array().unwrap().len(), 0, "{v}");
+    assert_eq!(v["undetermined_designs"].as_u64(), Some(6));
 }

@@ -144,7 +144,12 @@ fn uncertified(
         network.max_rate(),
     );
     let relative = gap / scale.max(f64::MIN_POSITIVE);
-    if roundoff >= 0.5 * gap {
+    if !roundoff.is_finite() {
+        SolveError::NotDetermined(format!(
+            "the round-off allowance of the best value found, {:.6e}, leaves the double range (a gradient term beyond 1e308: rates, probabilities or labels of extreme size, here rates from {slowest:.1e} to {fastest:.1e} per time unit); fix: rescale the time or energy unit so that rates and work labels sit nearer 1, or restrict the added pathways with --pairs",
+            certified.value
+        ))
+    } else if roundoff >= 0.5 * gap {
         SolveError::NotDetermined(format!(
             "the best value found, {:.6e}, carries a round-off of +- {roundoff:.1e} (relative gap {relative:.1e}, more than {CERTIFIED_GAP:.0e}) because the network's rates span {slowest:.1e} to {fastest:.1e} per time unit; fix: merge states that are in fast equilibrium with a neighbour, remove channels far slower than the rest, or restrict the added pathways with --pairs",
             certified.value

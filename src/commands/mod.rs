@@ -344,7 +344,7 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
     let (from, to, points) = (request.from, request.to, request.points);
     if !(from.is_normal() && from > 0.0 && to > from && to.is_finite()) || points < 2 {
         return Err(Error::Usage(format!(
-            "--from {from} --to {to} --points {points}: give 2.2e-308 <= FROM < TO (normal doubles) and at least 2 points (the scales are log-spaced)"
+            "--from {from:e} --to {to:e} --points {points}: give 2.2e-308 <= FROM < TO (normal doubles) and at least 2 points (the scales are log-spaced)"
         )));
     }
     let u = &model.units;

@@ -36,7 +36,7 @@ fn round_to_12_digits(x: f64) -> f64 {
 
 /// Unit round-off of [`DoubleDouble`] arithmetic, taken as 2^-104 per operation (the
 /// algorithms below are accurate to a few units of 2^-106; Joldes, Muller and Popescu,
-/// ACM Trans. Math. Softw. 44, 48 (2017)). Below about 1e-290 the low word underflows and the
+/// ACM Trans. Math. Softw. 44 (2017), from memory). Below about 1e-290 the low word underflows and the
 /// accuracy falls towards plain double precision, so callers keep values well above that.
 pub const DOUBLE_DOUBLE_EPSILON: f64 = 4.930380657631324e-32;
 

@@ -1,4 +1,4 @@
-//! Closed-form estimates of the bound (theory note, section 6) and the regime indicator that
+//! Closed-form estimates of the bound (methods, section 6) and the regime indicator that
 //! says which of them to trust.
 //!
 //! Near equilibrium, `Phi(pi + eps) ~ W_base + v . eps - (1/2) eps' H eps` with `v` the
@@ -19,7 +19,7 @@
 //! `Phi* = u_m - sum_t r_mt [1 + ln((u_m - u_t) / r_mt)] + O(r^2 ln(du / r) / du)`.
 //!
 //! The bracket is the first correction to the corner limit `u_m`: of order (escape rate of `m`)
-//! times ln(drive / kT), as the theory note anticipates; the neglected terms come from the
+//! times ln(drive / kT), as methods section 6 anticipates; the neglected terms come from the
 //! jumps back into `m` and among the other states, each carrying a factor `eps`. So the relative
 //! error of the corrected form falls like `ln(lambda) / lambda^2` when all energies scale with
 //! `lambda` (and that of the bare corner limit only like `ln(lambda) / lambda`).

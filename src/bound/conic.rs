@@ -5,7 +5,7 @@
 //!   each off-diagonal generator entry is one cone `t >= p_j ln(p_j / (c_ij p_i))`, i.e.
 //!   `(-t, p_j, c_ij p_i)` in `K_exp = {(r, s, u): s > 0, s exp(r/s) <= u}`.
 //! - [`capped`]: the exact best design under a per-direction rate cap, with one-way fluxes
-//!   `f_e, g_e` of each candidate pathway as extra variables (theory note, section 5).
+//!   `f_e, g_e` of each candidate pathway as extra variables (methods, section 5).
 //!
 //! Solver outcomes other than solved are returned as [`SolveError::Conic`] with the status.
 

@@ -1,5 +1,5 @@
 //! The universal bound on harvesting power under added pathways, its certificate, and the
-//! designs that attain it (theory note, sections 3 to 5).
+//! designs that attain it (methods, sections 3 to 5).
 //!
 //! Owns: the routability constraints of a pair restriction, the solve of `Phi* = max Phi(p)`
 //! (log-domain Newton from the baseline steady state, with Clarabel's exponential-cone program

@@ -1,4 +1,4 @@
-//! Design search under budgets (theory note, section 5, last bullet): which added pathways to
+//! Design search under budgets (methods, section 5, last bullet): which added pathways to
 //! build, with which rates, when the number of pathways, their rates, their total rate or their
 //! work per jump is limited.
 //!

@@ -1,5 +1,5 @@
 //! The universal bound: its safety (no added pathways ever beat the certificate), its tightness
-//! (the tree design reaches it), the closed form of the theory note, and the capped design.
+//! (the tree design reaches it), the closed form of methods section 6, and the capped design.
 
 use crate::common::{close, load, network_strategy, parse};
 use ergopath::bound::design::{self, Pathway, TreeDesign};
@@ -99,7 +99,7 @@ fn roundoff_share(net: &Network, pathways: &[Pathway], headroom: f64) -> f64 {
 }
 
 /// Ring of n states, all rates k, equal energies, one step storing theta and drawing theta:
-/// headroom -> theta^2 k (n - 1) / (4 n^2 kT) as theta -> 0 (theory note, section 6, derived
+/// headroom -> theta^2 k (n - 1) / (4 n^2 kT) as theta -> 0 (methods, section 6, derived
 /// there). Checked at theta = 1e-2 kT for n = 3, 6, 12, and the theta^2 and 1/n scaling.
 #[test]
 fn ring_headroom_matches_the_small_drive_closed_form() {
@@ -220,7 +220,7 @@ fn capped_design_equals_a_brute_force_grid_search() {
     );
 }
 
-/// As the cap grows the capped design tends to the universal bound (theory note, section 5).
+/// As the cap grows the capped design tends to the universal bound (methods, section 5).
 #[test]
 fn capped_design_tends_to_the_bound() {
     let model = load("problems/ring6.toml");
@@ -487,7 +487,7 @@ fn ring_with_appendix(len: usize) -> Network {
 /// tail follows the stationarity condition. Inside the chain (rates r both ways, energies 0,
 /// no work) `g_k = lambda` with `lambda = Phi*` (Euler's relation) and a geometric tail
 /// `p_{k+1} = rho p_k` gives `-2r + r (rho + 1/rho) = Phi*`, so
-/// `rho + 1/rho = 2 + Phi*/r` (derived here from the gradient of Phi, theory note section 3).
+/// `rho + 1/rho = 2 + Phi*/r` (derived here from the gradient of Phi, methods, section 3).
 #[test]
 fn optimum_below_the_smallest_double_is_certified_and_follows_the_tail_law() {
     let settings = BoundSettings::default();

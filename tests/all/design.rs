@@ -10,7 +10,7 @@ use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
 
 /// Total harvesting power of `net` plus added pathways `(a, b, q+, q-)`, each storing
-/// `E_a - E_b - ln(q+/q-)` kT per forward jump (theory note, section 2), from a dense LU solve
+/// `E_a - E_b - ln(q+/q-)` kT per forward jump (methods, section 2), from a dense LU solve
 /// of `L p = 0` with the last equation replaced by `sum p = 1`.
 fn power(net: &Network, added: &[(usize, usize, f64, f64)]) -> f64 {
     let n = net.len();
@@ -392,7 +392,7 @@ fn shards_merged_equal_one_run_byte_for_byte() {
 #[test]
 fn sweep_never_falls_stays_under_its_bounds_and_tends_to_the_universal_bound() {
     // Three pathways are enough for the fast tree design on 4 states, so at a large cap the
-    // best design must come within 1% of the universal bound (theory note, sections 4 and 5).
+    // best design must come within 1% of the universal bound (methods, sections 4 and 5).
     let report = json(&[
         "sweep",
         "problems/walker.toml",

@@ -1,4 +1,4 @@
-//! Fluctuating environments (theory note, section 7): the joint chain against the two
+//! Fluctuating environments (methods, section 7): the joint chain against the two
 //! time-scale limits, and environment-blind designs against the environment-aware bound.
 //!
 //! The limits are the standard averaging results for Markov chains with a fast or a slow

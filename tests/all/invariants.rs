@@ -1,6 +1,6 @@
 //! Random valid models through the whole pipeline (steady state, bound, design search), with
 //! the invariants every result must keep: probabilities positive and summing to one, the
-//! free-energy balance D - W = kT sigma (theory note, section 1), a certified upper value at
+//! free-energy balance D - W = kT sigma (methods, section 1), a certified upper value at
 //! least the attained bound, and no verified design above it (section 3).
 
 use crate::common::network_strategy;

@@ -170,7 +170,7 @@ fn random_six_state_network_matches_matrix_tree_theorem() {
     }
 }
 
-/// Exact SI constants (2019 SI, CODATA 2018) and the values the theory note derives from them:
+/// Exact SI constants (2019 SI, CODATA 2018) and the values derived from them (methods, section 8):
 /// RT = 2.47896 kJ/mol, kT = 4.1164 pN nm, 1 eV = 38.92 kT at 298.15 K, and a 500 nm photon
 /// carries hc/lambda = 2.4797 eV (hc = 1239.84198 eV nm).
 #[test]

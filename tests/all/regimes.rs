@@ -1,4 +1,4 @@
-//! Closed forms and the regime verdict (theory note, section 6) against the exact bound along
+//! Closed forms and the regime verdict (methods, section 6) against the exact bound along
 //! sweeps: the strong-drive form's convergence, and the verdict's promise that the form it
 //! names is accurate.
 
@@ -43,7 +43,7 @@ const MODELS: [&str; 9] = [
 
 /// The corner limit's first correction (derived in `bound::closed_form`) makes the error fall
 /// like ln(lambda)/lambda^2 when the stored energy per jump grows with lambda at fixed rates:
-/// on the ring of the theory note and on every model, the error falls at each step from 30x to
+/// on the ring of methods section 6 and on every model, the error falls at each step from 30x to
 /// 1000x and is under 1% at 1000x (a few hundred kT per jump on the ring: ring6 stores 1 kT).
 #[test]
 fn strong_drive_form_converges_as_the_stored_energy_grows() {

@@ -76,6 +76,7 @@ fn save(root: &Path, model: &Model, files: &[(&str, &str)]) -> Result<String, Er
                 source,
             }
         })?;
+    let summary = crate::report::output::printable(&summary).into_owned();
     let report = dir.join("report.md");
     crate::report::output::write_atomic(&report, summary.as_bytes())?;
     written.push(report.display().to_string());
@@ -99,6 +100,15 @@ fn emit(
     save_root: Option<&Path>,
     r: Rendered,
 ) -> Result<String, Error> {
+    // Titles and names from the model reach these forms; JSON escapes control characters
+    // itself, the others lose them here.
+    let clean = |text: String| crate::report::output::printable(&text).into_owned();
+    let r = Rendered {
+        text: clean(r.text),
+        json: r.json,
+        csv: r.csv.map(clean),
+        svg: r.svg.map(clean),
+    };
     let printed = match format {
         Format::Text => r.text.clone(),
         Format::Json => r.json.clone(),

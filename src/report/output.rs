@@ -46,6 +46,22 @@ pub fn write_atomic(path: &Path, contents: &[u8]) -> Result<(), OutputError> {
     result.map_err(wrap)
 }
 
+/// `text` with every control character other than newline and tab (terminal escape
+/// sequences, carriage returns, bells; C0, DEL and C1) replaced by U+FFFD, so that a title or a
+/// name from a model file cannot drive the terminal that shows a report.
+pub fn printable(text: &str) -> std::borrow::Cow<'_, str> {
+    let unsafe_char = |c: char| c.is_control() && c != '\n' && c != '\t';
+    if text.chars().any(unsafe_char) {
+        std::borrow::Cow::Owned(
+            text.chars()
+                .map(|c| if unsafe_char(c) { '\u{fffd}' } else { c })
+                .collect(),
+        )
+    } else {
+        std::borrow::Cow::Borrowed(text)
+    }
+}
+
 /// Pretty JSON with a trailing newline.
 pub fn to_json<T: serde::Serialize>(value: &T) -> Result<String, OutputError> {
     let mut text = serde_json::to_string_pretty(value)?;
@@ -56,6 +72,15 @@ pub fn to_json<T: serde::Serialize>(value: &T) -> Result<String, OutputError> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn control_characters_are_not_printed() {
+        assert_eq!(printable("a\tb\nc"), "a\tb\nc");
+        assert_eq!(
+            printable("x\u{1b}[2Jy\r\u{7}\u{9b}"),
+            "x\u{fffd}[2Jy\u{fffd}\u{fffd}\u{fffd}"
+        );
+    }
 
     #[test]
     fn atomic_write_replaces_and_leaves_no_temporary() {

@@ -3,7 +3,7 @@
 //! Turns flags and model defaults into a [`Budget`], runs the bound and the search, and hands
 //! the outcome to the reports. Like the rest of [`crate::commands`], nothing here prints.
 
-use super::{emit, resolve_pairs, Error, Format, Rendered};
+use super::{emit, emit_in, folder_name, resolve_pairs, Error, Format, Rendered};
 use crate::bound::{self, design, Bound, BoundSettings};
 use crate::model::{Model, PairSelection};
 use crate::progress::Bar;
@@ -442,9 +442,8 @@ fn write_part(
         part,
     };
     let root = save_root.map_or_else(|| PathBuf::from("results"), Path::to_path_buf);
-    let out = root
-        .join(model.stem())
-        .join(format!("design-part-{index}-of-{count}.json"));
+    let folder = crate::report::output::results_folder(&root, &folder_name(model))?;
+    let out = folder.join(format!("design-part-{index}-of-{count}.json"));
     write_atomic(&out, to_json(&file)?.as_bytes())?;
     let scored: u64 = file.part.branches.iter().map(|b| b.scored).sum();
     Ok(format!(
@@ -452,7 +451,7 @@ fn write_part(
         file.part.branches.len(),
         file.part.singles,
         out.display(),
-        root.join(model.stem()).join(format!("design-part-*-of-{count}.json")).display()
+        folder.join(format!("design-part-*-of-{count}.json")).display()
     ))
 }
 
@@ -841,13 +840,14 @@ pub fn compare(paths: &[PathBuf], request: &CompareRequest) -> Result<String, Er
         csv: Some(report.csv()),
         svg: Some(report.svg()),
     };
-    let Some(root) = request.save_root.as_deref() else {
-        return emit(&models[0], "compare", request.format, None, rendered);
-    };
-    // Results of a comparison belong to no single model: they go to results/compare/.
-    let holder = Model {
-        source: PathBuf::from("compare"),
-        ..models[0].clone()
-    };
-    emit(&holder, "compare", request.format, Some(root), rendered)
+    // Results of a comparison belong to no single model: they go to results/compare/ (a model
+    // file named compare.toml saves to results/compare-model/).
+    emit_in(
+        "compare",
+        &models[0].title,
+        "compare",
+        request.format,
+        request.save_root.as_deref(),
+        rendered,
+    )
 }

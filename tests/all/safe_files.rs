@@ -1,8 +1,10 @@
-//! The file layer as untrusted ground (issue 15): oversized and non-regular model files, a full
-//! standard error, thread counts and terminal escapes in titles. Every case runs the real
-//! binary.
+//! The file layer as untrusted ground (issue 15): names derived from model files, planted links
+//! and FIFOs in the results folder, guessable temporary names, failed checkpoint writes, edited
+//! part files and checkpoints, oversized and non-regular model files, a full standard error,
+//! terminal escapes in titles and concurrent saves. Every case runs the real binary.
 
 use crate::common::{root, scratch};
+use std::os::unix::fs::symlink;
 use std::path::Path;
 use std::process::{Command, Output, Stdio};
 use std::time::{Duration, Instant};
@@ -48,6 +50,237 @@ fn refused(out: &Output, phrase: &str) {
     assert_eq!(out.status.code(), Some(2), "{err}");
     assert!(err.contains(phrase), "expected '{phrase}' in:\n{err}");
     assert!(out.stdout.is_empty());
+}
+
+fn names_in(dir: &Path) -> Vec<String> {
+    let mut names: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    names
+}
+
+#[test]
+fn names_from_model_files_are_made_safe() {
+    let dir = scratch("safe-names");
+    let model = std::fs::read_to_string(walker()).unwrap();
+    // `...toml` has the stem `..`: its results must not land in the working folder.
+    std::fs::write(dir.join("...toml"), &model).unwrap();
+    std::fs::write(dir.join("planted.txt"), "not a report").unwrap();
+    let out = run_in(&dir, &["steady", "...toml", "--save"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(dir.join("results/model/steady.txt").is_file());
+    assert_eq!(names_in(&dir), ["...toml", "planted.txt", "results"]);
+    assert_eq!(names_in(&dir.join("results")), ["model"]);
+    let report = std::fs::read_to_string(dir.join("results/model/report.md")).unwrap();
+    assert!(!report.contains("planted"), "{report}");
+    // A model named like a shared folder gets a folder of its own.
+    std::fs::write(dir.join("compare.toml"), &model).unwrap();
+    let out = run_in(&dir, &["steady", "compare.toml", "--save"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(dir.join("results/compare-model/steady.txt").is_file());
+    assert!(!dir.join("results/compare").exists());
+}
+
+#[test]
+fn results_folders_are_never_followed_through_a_link() {
+    let dir = scratch("safe-links");
+    let elsewhere = dir.join("elsewhere");
+    std::fs::create_dir_all(&elsewhere).unwrap();
+    std::fs::create_dir(dir.join("results")).unwrap();
+    symlink(&elsewhere, dir.join("results/walker")).unwrap();
+    let out = run_in(&dir, &["steady", &walker(), "--save"]);
+    refused(&out, "symbolic link");
+    assert!(stderr(&out).contains("results/walker"));
+    assert!(names_in(&elsewhere).is_empty());
+    // The same for the results folder itself.
+    std::fs::remove_file(dir.join("results/walker")).unwrap();
+    std::fs::remove_dir(dir.join("results")).unwrap();
+    symlink(&elsewhere, dir.join("results")).unwrap();
+    for args in [
+        vec!["bound", &walker(), "--save"],
+        vec!["design", &walker(), "--shard", "0/2", "--save", "-q"],
+    ] {
+        let out = run_in(&dir, &args);
+        refused(&out, "symbolic link");
+        assert!(names_in(&elsewhere).is_empty());
+    }
+}
+
+#[test]
+fn planted_links_at_temporary_names_are_never_followed() {
+    let dir = scratch("safe-temporary");
+    let folder = dir.join("results/walker");
+    std::fs::create_dir_all(&folder).unwrap();
+    let victim = dir.join("victim.txt");
+    std::fs::write(&victim, "precious").unwrap();
+    // The names `.NAME.<pid>.tmp` of the next few hundred process ids, each a link to the
+    // victim: a writer that opens a guessable name through a link overwrites it.
+    let last: u32 = std::fs::read_to_string("/proc/sys/kernel/ns_last_pid")
+        .ok()
+        .and_then(|t| t.trim().parse().ok())
+        .unwrap_or(std::process::id());
+    for pid in last + 1..last + 400 {
+        for name in ["steady.txt", "steady.json", "steady.csv", "report.md"] {
+            let _ = symlink(&victim, folder.join(format!(".{name}.{pid}.tmp")));
+        }
+    }
+    // A temporary file of a result set that a killed run left behind is cleaned up.
+    std::fs::write(folder.join(".ergopath-set-AbC123.tmp"), "stale").unwrap();
+    let planted = names_in(&folder).len() - 1;
+    let out = run_in(&dir, &["steady", &walker(), "--save"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert_eq!(std::fs::read_to_string(&victim).unwrap(), "precious");
+    // Exactly the report's files, report.md and the manifest were added, no temporary file.
+    assert_eq!(names_in(&folder).len(), planted + 5);
+    assert!(!folder.join(".ergopath-set-AbC123.tmp").exists());
+    assert!(folder.join("manifest.json").is_file());
+}
+
+#[test]
+fn report_is_built_from_the_manifest_only() {
+    let dir = scratch("safe-report");
+    let folder = dir.join("results/walker");
+    std::fs::create_dir_all(&folder).unwrap();
+    let secret = dir.join("secret");
+    std::fs::write(&secret, "SECRET CONTENT").unwrap();
+    symlink(&secret, folder.join("stolen.txt")).unwrap();
+    let made = Command::new("mkfifo")
+        .arg(folder.join("blocking.txt"))
+        .status()
+        .unwrap();
+    assert!(made.success());
+    std::fs::write(folder.join("planted.txt"), "PLANTED").unwrap();
+    let out = run_in(&dir, &["steady", &walker(), "--save"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let out = run_in(&dir, &["bound", &walker(), "--save"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let report = std::fs::read_to_string(folder.join("report.md")).unwrap();
+    assert!(report.contains("## steady") && report.contains("## bound"));
+    for foreign in ["SECRET", "PLANTED", "stolen", "blocking", "planted"] {
+        assert!(!report.contains(foreign), "{foreign} in:\n{report}");
+    }
+    // A listed report replaced by a link or a FIFO is left out, never read.
+    std::fs::remove_file(folder.join("steady.txt")).unwrap();
+    symlink(&secret, folder.join("steady.txt")).unwrap();
+    std::fs::remove_file(folder.join("bound.txt")).unwrap();
+    let made = Command::new("mkfifo")
+        .arg(folder.join("bound.txt"))
+        .status()
+        .unwrap();
+    assert!(made.success());
+    let out = run_in(
+        &dir,
+        &[
+            "sweep",
+            &walker(),
+            "--over",
+            "rate-cap=1..10",
+            "--points",
+            "2",
+            "--save",
+            "-q",
+        ],
+    );
+    assert!(out.status.success(), "{}", stderr(&out));
+    let report = std::fs::read_to_string(folder.join("report.md")).unwrap();
+    assert!(report.contains("## sweep-rate-cap"), "{report}");
+    assert!(
+        !report.contains("SECRET") && !report.contains("## bound"),
+        "{report}"
+    );
+    // A manifest that is not this tool's is refused, with the fix.
+    std::fs::write(
+        folder.join("manifest.json"),
+        r#"{"format":"ergopath-results/1","reports":{"../x":["../x.txt"]}}"#,
+    )
+    .unwrap();
+    let out = run_in(&dir, &["steady", &walker(), "--save"]);
+    refused(&out, "manifest.json");
+    assert!(stderr(&out).contains("fix: remove it"));
+}
+
+#[test]
+fn committed_reports_are_rebuilt_exactly_from_their_manifests() {
+    use ergopath::report::output::{read_back, Manifest};
+    let mut checked = 0;
+    for entry in std::fs::read_dir(root().join("results")).unwrap() {
+        let dir = entry.unwrap().path();
+        let Ok(committed) = std::fs::read_to_string(dir.join("report.md")) else {
+            continue;
+        };
+        let manifest = Manifest::read(&dir).unwrap();
+        let title = committed
+            .lines()
+            .next()
+            .and_then(|l| l.strip_prefix("# Results: "))
+            .unwrap();
+        let rebuilt = ergopath::report::summary::report_markdown(title, &manifest, &mut |stem| {
+            read_back(&dir.join(format!("{stem}.txt")))
+        })
+        .unwrap();
+        assert_eq!(rebuilt, committed, "{}", dir.display());
+        for files in manifest.reports.values() {
+            for file in files {
+                assert!(dir.join(file).is_file(), "{}: {file}", dir.display());
+            }
+        }
+        checked += 1;
+    }
+    assert!(checked >= 5);
+}
+
+#[test]
+fn concurrent_saves_never_interleave_their_files() {
+    let dir = scratch("safe-concurrent");
+    let targets = ["0.5", "0.6", "0.7", "0.8"];
+    // What each run prints as JSON is what it must save as JSON.
+    let expected: Vec<String> = targets
+        .iter()
+        .map(|t| {
+            let out = run_in(&dir, &["bound", &walker(), "--target", t, "--json"]);
+            String::from_utf8(out.stdout).unwrap()
+        })
+        .collect();
+    for _ in 0..6 {
+        let children: Vec<_> = targets
+            .iter()
+            .map(|t| {
+                Command::new(env!("CARGO_BIN_EXE_ergopath"))
+                    .args(["bound", &walker(), "--target", t, "--save"])
+                    .current_dir(&dir)
+                    .stdout(Stdio::piped())
+                    .stderr(Stdio::piped())
+                    .spawn()
+                    .unwrap()
+            })
+            .collect();
+        let texts: Vec<String> = children
+            .into_iter()
+            .map(|c| {
+                let out = c.wait_with_output().unwrap();
+                assert!(out.status.success(), "{}", stderr(&out));
+                let text = String::from_utf8(out.stdout).unwrap();
+                text[..text.find("\n  saved: ").unwrap()].to_string()
+            })
+            .collect();
+        let folder = dir.join("results/walker");
+        let json = std::fs::read_to_string(folder.join("bound.json")).unwrap();
+        let text = std::fs::read_to_string(folder.join("bound.txt")).unwrap();
+        let which = expected.iter().position(|e| *e == json).unwrap();
+        assert_eq!(
+            text, texts[which],
+            "bound.txt and bound.json of different runs"
+        );
+        let report = std::fs::read_to_string(folder.join("report.md")).unwrap();
+        assert!(report.contains(text.trim_end()));
+        let stray: Vec<String> = names_in(&folder)
+            .into_iter()
+            .filter(|n| n.ends_with(".tmp"))
+            .collect();
+        assert!(stray.is_empty(), "{stray:?}");
+    }
 }
 
 #[test]

@@ -30,6 +30,13 @@ pub enum Error {
     /// Stopped on request (Ctrl-C) with the progress kept.
     #[error("{0}")]
     Interrupted(String),
+    /// The checkpoint file could not be written: the run stopped, the file holds `kept`.
+    #[error("{source}\n  the run stopped: the checkpoint holds {kept} (as last written)\n  fix: free space or give another --checkpoint FILE, then rerun with --resume")]
+    Checkpoint {
+        #[source]
+        source: OutputError,
+        kept: String,
+    },
 }
 
 impl Error {
@@ -38,7 +45,7 @@ impl Error {
         match self {
             Error::Model(_) | Error::Usage(_) => 2,
             Error::Output(e) if e.is_bad_input() => 2,
-            Error::Solve(_) | Error::Output(_) => 1,
+            Error::Solve(_) | Error::Output(_) | Error::Checkpoint { .. } => 1,
             // The conventional status of a process stopped by SIGINT.
             Error::Interrupted(_) => 130,
         }

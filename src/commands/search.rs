@@ -39,20 +39,33 @@ struct CheckpointFile {
 }
 
 /// Keeps finished branches in a file (rewritten atomically after each branch) and stops the
-/// search on Ctrl-C or, for tests, after a given number of new branches.
+/// search on Ctrl-C, on a failed write of the file or, for tests, after a given number of new
+/// branches.
 struct FileKeeper {
     path: PathBuf,
     file: std::sync::Mutex<CheckpointFile>,
     stop_after: Option<usize>,
     new_branches: std::sync::atomic::AtomicUsize,
+    /// The first failed write of the checkpoint: the search stops and the command fails.
+    failure: std::sync::Mutex<Option<crate::report::output::OutputError>>,
+    /// Finished branches in the file as last written.
+    on_disk: std::sync::atomic::AtomicUsize,
 }
 
 /// Set by the Ctrl-C handler.
 static INTERRUPTED: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
 
+/// The guarded value even if a thread panicked while holding the lock.
+fn locked<T>(mutex: &std::sync::Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    mutex
+        .lock()
+        .unwrap_or_else(std::sync::PoisonError::into_inner)
+}
+
 impl FileKeeper {
     /// A keeper for `searcher`'s search at `path`; with `resume`, the file must exist and
-    /// belong to the same search.
+    /// belong to the same search. The file is written once at once, so that a checkpoint that
+    /// cannot be written fails the command before any work is done.
     fn open(
         path: &Path,
         searcher: &Searcher,
@@ -76,6 +89,8 @@ impl FileKeeper {
             }
             file.finished = kept.finished;
         }
+        write_atomic(path, to_json(&file)?.as_bytes())?;
+        let on_disk = std::sync::atomic::AtomicUsize::new(file.finished.len());
         // The first Ctrl-C asks the search to stop after the branches in flight; a handler
         // can be set only once per process, which is all a command needs.
         let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
@@ -84,26 +99,38 @@ impl FileKeeper {
             file: std::sync::Mutex::new(file),
             stop_after,
             new_branches: std::sync::atomic::AtomicUsize::new(0),
+            failure: std::sync::Mutex::new(None),
+            on_disk,
         })
+    }
+
+    /// Finished branches in the file as last written.
+    fn on_disk(&self) -> usize {
+        self.on_disk.load(std::sync::atomic::Ordering::SeqCst)
+    }
+
+    /// The first failed write, if any.
+    fn take_failure(&self) -> Option<crate::report::output::OutputError> {
+        locked(&self.failure).take()
     }
 }
 
 impl search::Keeper for FileKeeper {
     fn finished(&self) -> Vec<search::BranchResult> {
-        self.file
-            .lock()
-            .map(|f| f.finished.clone())
-            .unwrap_or_default()
+        locked(&self.file).finished.clone()
     }
 
     fn record(&self, result: &search::BranchResult) {
         use std::sync::atomic::Ordering;
         self.new_branches.fetch_add(1, Ordering::SeqCst);
-        if let Ok(mut file) = self.file.lock() {
-            file.finished.push(result.clone());
-            // A failed write loses only this branch's record: the search itself goes on.
-            if let Ok(json) = to_json(&*file) {
-                let _ = write_atomic(&self.path, json.as_bytes());
+        let mut file = locked(&self.file);
+        file.finished.push(result.clone());
+        // A failed write stops the search (see `should_stop`) and fails the command: the file
+        // keeps what it held before, which is what the message then reports.
+        match to_json(&*file).and_then(|json| write_atomic(&self.path, json.as_bytes())) {
+            Ok(()) => self.on_disk.store(file.finished.len(), Ordering::SeqCst),
+            Err(e) => {
+                locked(&self.failure).get_or_insert(e);
             }
         }
     }
@@ -111,10 +138,90 @@ impl search::Keeper for FileKeeper {
     fn should_stop(&self) -> bool {
         use std::sync::atomic::Ordering;
         INTERRUPTED.load(Ordering::SeqCst)
+            || locked(&self.failure).is_some()
             || self
                 .stop_after
                 .is_some_and(|n| self.new_branches.load(Ordering::SeqCst) >= n)
     }
+}
+
+/// Refuses a `--checkpoint` path that is a folder or not a regular file, that is the model
+/// file itself (also through a link), or that lies in the results folder `saved_in` that
+/// `--save` writes.
+fn check_checkpoint_path(
+    checkpoint: &Path,
+    model: &Path,
+    saved_in: Option<&Path>,
+) -> Result<(), Error> {
+    let shown = checkpoint.display();
+    if let Ok(meta) = std::fs::metadata(checkpoint) {
+        if meta.is_dir() {
+            return Err(Error::Usage(format!(
+                "--checkpoint {shown} is a folder: give a file name, e.g. {}",
+                checkpoint.join("checkpoint.json").display()
+            )));
+        }
+        if !meta.is_file() {
+            return Err(Error::Usage(format!(
+                "--checkpoint {shown} is not a regular file (a FIFO or a device?): give the path of a file to write"
+            )));
+        }
+    }
+    let resolved = resolve(checkpoint);
+    if resolved.is_some() && resolved == resolve(model) || same_file(checkpoint, model) {
+        return Err(Error::Usage(format!(
+            "--checkpoint {shown} is the model file {}: the checkpoint would overwrite the model; give another file, e.g. checkpoint.json",
+            model.display()
+        )));
+    }
+    if let (Some(folder), Some(parent)) = (
+        saved_in.and_then(resolve),
+        checkpoint
+            .parent()
+            .map(|p| {
+                if p.as_os_str().is_empty() {
+                    Path::new(".")
+                } else {
+                    p
+                }
+            })
+            .and_then(resolve),
+    ) {
+        if folder == parent {
+            return Err(Error::Usage(format!(
+                "--checkpoint {shown} lies in the results folder {} that --save writes: give a file outside it",
+                folder.display()
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// The canonical form of `path`, or of its folder joined with its name when the file does not
+/// exist yet; `None` when neither resolves.
+fn resolve(path: &Path) -> Option<PathBuf> {
+    if let Ok(p) = std::fs::canonicalize(path) {
+        return Some(p);
+    }
+    let name = path.file_name()?;
+    let parent = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    Some(std::fs::canonicalize(parent).ok()?.join(name))
+}
+
+/// Whether two existing paths are the same file (also through hard links).
+fn same_file(a: &Path, b: &Path) -> bool {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        if let (Ok(x), Ok(y)) = (std::fs::metadata(a), std::fs::metadata(b)) {
+            return x.dev() == y.dev() && x.ino() == y.ino();
+        }
+    }
+    let _ = (a, b);
+    false
 }
 
 /// Budget flags; `None` falls back to the model's `[pathways]` table. Work in the model's unit.
@@ -389,6 +496,13 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             "--resume needs --checkpoint FILE: the file that the interrupted run wrote".into(),
         ));
     }
+    if let Some(file) = &request.checkpoint {
+        let saved_in = request
+            .save_root
+            .as_ref()
+            .map(|root| root.join(folder_name(&model)));
+        check_checkpoint_path(file, path, saved_in.as_deref())?;
+    }
     let bound = solve_bound(&model, &pairs)?;
     let bar = request.knobs.bar(&model);
     let searcher = searcher_for(&model, &pairs, &bound, settings, request.knobs.blind)?;
@@ -401,16 +515,24 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             .in_pool(|| searcher.run(shard, &bar, &search::NoCheckpoint))??,
         Some(file) => {
             let keeper = FileKeeper::open(file, &searcher, request.resume, request.stop_after)?;
-            request
+            let run = request
                 .knobs
-                .in_pool(|| searcher.run(shard, &bar, &keeper))?
-                .map_err(|e| match Error::from(e) {
-                    Error::Interrupted(why) => Error::Interrupted(format!(
-                        "{why}; they are kept in {} and `--resume` continues from there",
-                        file.display()
-                    )),
-                    other => other,
-                })?
+                .in_pool(|| searcher.run(shard, &bar, &keeper))?;
+            if let Some(failure) = keeper.take_failure() {
+                return Err(Error::Checkpoint {
+                    source: failure,
+                    kept: counted(keeper.on_disk(), "finished branch", "finished branches"),
+                });
+            }
+            run.map_err(|e| match e {
+                // Only what the file really holds is reported as kept.
+                SearchError::Interrupted { total, .. } => Error::Interrupted(format!(
+                    "interrupted: {} of {total} branches finished and kept in {}; `--resume` continues from there",
+                    keeper.on_disk(),
+                    file.display()
+                )),
+                other => Error::from(other),
+            })?
         }
     };
     if shard == Shard::WHOLE {
@@ -600,6 +722,28 @@ fn sweep_progress(
     Ok(kept.done)
 }
 
+/// `1 thing` or `n things`.
+fn counted(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
+/// Writes the sweep checkpoint; on failure, says that `kept` points are in the file as before.
+fn write_sweep_checkpoint(
+    file: &Path,
+    identity: &str,
+    done: &[SweepDone],
+    kept: usize,
+) -> Result<(), Error> {
+    let checkpoint = SweepCheckpoint {
+        identity: identity.to_string(),
+        done: done.to_vec(),
+    };
+    write_atomic(file, to_json(&checkpoint)?.as_bytes()).map_err(|source| Error::Checkpoint {
+        source,
+        kept: counted(kept, "finished budget point", "finished budget points"),
+    })
+}
+
 /// Parses `NAME=A..B` into the quantity and its values (log-spaced for rates and wide ranges,
 /// every integer for `max-pathways`).
 fn sweep_values(over: &str, points: usize) -> Result<(SweepOver, Vec<f64>), Error> {
@@ -688,8 +832,17 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         ),
         pairs
     );
+    if let Some(file) = &request.checkpoint {
+        let saved_in = request
+            .save_root
+            .as_ref()
+            .map(|root| root.join(folder_name(&model)));
+        check_checkpoint_path(file, path, saved_in.as_deref())?;
+    }
     let mut done = sweep_progress(request.checkpoint.as_deref(), &identity, request.resume)?;
-    if request.checkpoint.is_some() {
+    if let Some(file) = &request.checkpoint {
+        // Written at once, so that a checkpoint that cannot be written fails before any work.
+        write_sweep_checkpoint(file, &identity, &done, done.len())?;
         let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
     }
     let bar = knobs.bar(&model);
@@ -748,11 +901,7 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         });
         new_points += 1;
         if let Some(file) = &request.checkpoint {
-            let kept = SweepCheckpoint {
-                identity: identity.clone(),
-                done: done.clone(),
-            };
-            write_atomic(file, to_json(&kept)?.as_bytes())?;
+            write_sweep_checkpoint(file, &identity, &done, done.len() - 1)?;
         }
     }
     bar.finish();

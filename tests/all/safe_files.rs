@@ -283,6 +283,151 @@ fn concurrent_saves_never_interleave_their_files() {
     }
 }
 
+/// Runs the binary under a file-size limit of `kib` KiB (writes beyond it fail with EFBIG, the
+/// signal that would kill the process ignored): a disk that fills up.
+fn run_limited(dir: &Path, kib: u32, args: &[&str]) -> Output {
+    let script = format!("trap '' XFSZ; ulimit -f {kib}; exec \"$0\" \"$@\"");
+    Command::new("bash")
+        .arg("-c")
+        .arg(script)
+        .arg(env!("CARGO_BIN_EXE_ergopath"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap()
+}
+
+fn ring6() -> String {
+    root().join("problems/ring6.toml").display().to_string()
+}
+
+const RING6_SEARCH: [&str; 7] = [
+    "--max-pathways",
+    "3",
+    "--rate-cap",
+    "10",
+    "--top",
+    "8",
+    "-q",
+];
+
+#[test]
+fn a_checkpoint_that_cannot_be_written_fails_the_run() {
+    let dir = scratch("safe-checkpoint-full");
+    let ring6 = ring6();
+    let args = [
+        &["design", ring6.as_str()][..],
+        &RING6_SEARCH,
+        &["--checkpoint", "ck.json"],
+    ]
+    .concat();
+    let out = run_limited(&dir, 8, &args);
+    let err = stderr(&out);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(
+        err.contains("cannot write") && err.contains("ck.json"),
+        "{err}"
+    );
+    assert!(out.stdout.is_empty());
+    // The message says what the file really holds.
+    let kept: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("ck.json")).unwrap()).unwrap();
+    let on_disk = kept["finished"].as_array().unwrap().len();
+    assert!(
+        err.contains(&format!("holds {on_disk} finished branch")),
+        "{on_disk} on disk:\n{err}"
+    );
+    let stray: Vec<String> = names_in(&dir)
+        .into_iter()
+        .filter(|n| n != "ck.json")
+        .collect();
+    assert!(stray.is_empty(), "{stray:?}");
+    // Stopped on purpose, the message counts the branches in the file.
+    let out = run_in(&dir, &[&args[..], &["--stop-after-branches=3"]].concat());
+    assert_eq!(out.status.code(), Some(130));
+    let kept: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("ck.json")).unwrap()).unwrap();
+    let on_disk = kept["finished"].as_array().unwrap().len();
+    assert!(
+        stderr(&out).contains(&format!("interrupted: {on_disk} of ")),
+        "{}",
+        stderr(&out)
+    );
+    // A sweep's checkpoint the same.
+    let out = run_limited(
+        &dir,
+        1,
+        &[
+            "sweep",
+            &walker(),
+            "--over",
+            "rate-cap=1..1e4",
+            "--points",
+            "5",
+            "-q",
+            "--checkpoint",
+            "sweep.json",
+        ],
+    );
+    assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
+    let err = stderr(&out);
+    let kept: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("sweep.json")).unwrap()).unwrap();
+    let on_disk = kept["done"].as_array().unwrap().len();
+    assert!(on_disk < 5);
+    assert!(
+        err.contains(&format!("holds {on_disk} finished budget point")),
+        "{err}"
+    );
+    assert!(!err.contains(".tmp"), "{err}");
+}
+
+#[test]
+fn a_checkpoint_may_not_be_the_model_a_folder_or_in_the_saved_folder() {
+    let dir = scratch("safe-checkpoint-path");
+    let model = dir.join("w.toml");
+    let text = std::fs::read_to_string(walker()).unwrap();
+    std::fs::write(&model, &text).unwrap();
+    symlink(&model, dir.join("alias.json")).unwrap();
+    for (command, extra) in [
+        ("design", vec!["-q"]),
+        (
+            "sweep",
+            vec!["--over", "rate-cap=1..10", "--points", "2", "-q"],
+        ),
+    ] {
+        for checkpoint in ["w.toml", "./w.toml", "alias.json"] {
+            let out = run_in(
+                &dir,
+                &[&[command, "w.toml", "--checkpoint", checkpoint][..], &extra].concat(),
+            );
+            refused(&out, "is the model file");
+            assert_eq!(std::fs::read_to_string(&model).unwrap(), text);
+        }
+        let out = run_in(
+            &dir,
+            &[&[command, "w.toml", "--checkpoint", "."][..], &extra].concat(),
+        );
+        refused(&out, "is a folder");
+        std::fs::create_dir_all(dir.join("results/w")).unwrap();
+        let out = run_in(
+            &dir,
+            &[
+                &[
+                    command,
+                    "w.toml",
+                    "--checkpoint",
+                    "results/w/design.json",
+                    "--save",
+                ][..],
+                &extra,
+            ]
+            .concat(),
+        );
+        refused(&out, "results folder");
+    }
+}
+
 #[test]
 fn oversized_and_non_regular_model_files_are_refused_unread() {
     let dir = scratch("safe-models");

@@ -3,6 +3,7 @@
 //! Turns flags and model defaults into a [`Budget`], runs the bound and the search, and hands
 //! the outcome to the reports. Like the rest of [`crate::commands`], nothing here prints.
 
+use super::files::{self, CHECKPOINT_FORMAT, PART_FORMAT, SWEEP_CHECKPOINT_FORMAT};
 use super::{emit, emit_in, folder_name, resolve_pairs, Error, Format, Rendered};
 use crate::bound::{self, design, Bound, BoundSettings};
 use crate::model::{Model, PairSelection};
@@ -32,6 +33,8 @@ impl From<SearchError> for Error {
 /// What a checkpoint file holds: the identity of the search and its finished branches.
 #[derive(Debug, Serialize, Deserialize)]
 struct CheckpointFile {
+    /// [`CHECKPOINT_FORMAT`]: files of another version are refused.
+    format: String,
     fingerprint: String,
     settings: SearchSettings,
     candidates: Vec<Vec<(usize, usize)>>,
@@ -68,12 +71,14 @@ impl FileKeeper {
     /// cannot be written fails the command before any work is done.
     fn open(
         path: &Path,
+        network: &crate::model::Network,
         searcher: &Searcher,
         resume: bool,
         stop_after: Option<usize>,
     ) -> Result<Self, Error> {
         let (fingerprint, settings, candidates) = searcher.identity();
         let mut file = CheckpointFile {
+            format: CHECKPOINT_FORMAT.into(),
             fingerprint,
             settings,
             candidates,
@@ -81,12 +86,15 @@ impl FileKeeper {
         };
         if resume {
             let kept: CheckpointFile = read_checkpoint(path, "design")?;
-            if kept.fingerprint != file.fingerprint
+            if kept.format != file.format
+                || kept.fingerprint != file.fingerprint
                 || kept.settings != file.settings
                 || kept.candidates != file.candidates
             {
                 return Err(foreign_checkpoint(path));
             }
+            files::check_branches(&kept.finished, network, &file.candidates, &file.settings)
+                .map_err(|why| damaged_checkpoint(path, &why))?;
             file.finished = kept.finished;
         }
         write_atomic(path, to_json(&file)?.as_bytes())?;
@@ -424,7 +432,7 @@ fn searcher_for<'a>(
 
 /// Reads a checkpoint written by `command --checkpoint`, for `--resume`.
 fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -> Result<T, Error> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
+    let text = files::read_untrusted(path).map_err(|e| {
         Error::Usage(format!(
             "--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh",
             path.display()
@@ -436,6 +444,14 @@ fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -
             path.display()
         ))
     })
+}
+
+/// The refusal of a checkpoint whose content does not hold up.
+fn damaged_checkpoint(path: &Path, why: &str) -> Error {
+    Error::Usage(format!(
+        "--resume: {} is damaged or was edited: {why}; start afresh without --resume",
+        path.display()
+    ))
 }
 
 /// The refusal of a checkpoint that belongs to another search.
@@ -467,6 +483,8 @@ pub struct DesignRequest {
 /// A shard's result on disk: the search part and what `merge` needs to rebuild the report.
 #[derive(Debug, Serialize, Deserialize)]
 struct PartFile {
+    /// [`PART_FORMAT`]: files of another version are refused.
+    format: String,
     /// Model file as given to `design`.
     model: PathBuf,
     /// Allowed pairs (`None`: all).
@@ -514,7 +532,13 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             .knobs
             .in_pool(|| searcher.run(shard, &bar, &search::NoCheckpoint))??,
         Some(file) => {
-            let keeper = FileKeeper::open(file, &searcher, request.resume, request.stop_after)?;
+            let keeper = FileKeeper::open(
+                file,
+                &model.network,
+                &searcher,
+                request.resume,
+                request.stop_after,
+            )?;
             let run = request
                 .knobs
                 .in_pool(|| searcher.run(shard, &bar, &keeper))?;
@@ -524,7 +548,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
                     kept: counted(keeper.on_disk(), "finished branch", "finished branches"),
                 });
             }
-            run.map_err(|e| match e {
+            let part = run.map_err(|e| match e {
                 // Only what the file really holds is reported as kept.
                 SearchError::Interrupted { total, .. } => Error::Interrupted(format!(
                     "interrupted: {} of {total} branches finished and kept in {}; `--resume` continues from there",
@@ -532,7 +556,28 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
                     file.display()
                 )),
                 other => Error::from(other),
-            })?
+            })?;
+            // Designs taken from the checkpoint rank by the power it states: each ranked one
+            // has just been verified by the search, and the two must agree.
+            if request.resume {
+                let edited = part.designs.iter().find(|d| {
+                    d.verified.is_some_and(|(power, roundoff)| {
+                        !files::power_agrees(d.power, &design::Verified { power, roundoff })
+                    })
+                });
+                if let Some(d) = edited {
+                    return Err(damaged_checkpoint(
+                        file,
+                        &format!(
+                            "its design on pathway set {:?} claims the power {:e} kT, but its steady-state solve gives {:e} kT",
+                            d.set,
+                            d.power,
+                            d.verified.map_or(f64::NAN, |v| v.0)
+                        ),
+                    ));
+                }
+            }
+            part
         }
     };
     if shard == Shard::WHOLE {
@@ -559,6 +604,7 @@ fn write_part(
 ) -> Result<String, Error> {
     let Shard { index, count } = part.shard;
     let file = PartFile {
+        format: PART_FORMAT.into(),
         model: path.to_path_buf(),
         pairs: selection_of(pairs),
         part,
@@ -602,9 +648,9 @@ pub fn merge(
     format: Format,
     save_root: Option<&Path>,
 ) -> Result<String, Error> {
-    let mut files = Vec::with_capacity(parts.len());
+    let mut read = Vec::with_capacity(parts.len());
     for path in parts {
-        let text = std::fs::read_to_string(path).map_err(|e| {
+        let text = files::read_untrusted(path).map_err(|e| {
             Error::Usage(format!(
                 "{}: cannot read the part file ({e})",
                 path.display()
@@ -616,9 +662,16 @@ pub fn merge(
                 path.display()
             ))
         })?;
-        files.push(file);
+        if file.format != PART_FORMAT {
+            return Err(Error::Usage(format!(
+                "{}: a part file of format '{}', not '{PART_FORMAT}': rerun its shard with this version of ergopath",
+                path.display(),
+                file.format
+            )));
+        }
+        read.push((path, file));
     }
-    let Some(first) = files.first() else {
+    let Some((_, first)) = read.first() else {
         return Err(Error::Usage("give the part files to merge".into()));
     };
     let model_path = model_override.map_or_else(|| first.model.clone(), Path::to_path_buf);
@@ -629,11 +682,64 @@ pub fn merge(
             model_path.display()
         )));
     }
+    let network = &model.network;
+    for (path, file) in &read {
+        let pairs_ok = file
+            .pairs
+            .as_ref()
+            .is_none_or(|list| list.iter().all(|&(a, b)| a < b && b < network.len()));
+        let checked = if pairs_ok {
+            files::check_part(&file.part, network)
+        } else {
+            Err("its pair selection names states the model does not have".into())
+        };
+        checked.map_err(|why| {
+            Error::Usage(format!(
+                "{}: the part file is damaged or was edited: {why}; rerun its shard",
+                path.display()
+            ))
+        })?;
+    }
     let pairs = match &first.pairs {
         None => PairSelection::All,
         Some(list) => PairSelection::Only(list.clone()),
     };
-    let outcome = search::merge(files.into_iter().map(|f| f.part).collect())?;
+    if read.iter().any(|(_, f)| f.pairs != first.pairs) {
+        return Err(Error::Usage(
+            "the part files come from searches over different pairs: give the parts of one search"
+                .into(),
+        ));
+    }
+    let parts: Vec<Part> = read.into_iter().map(|(_, f)| f.part).collect();
+    files::check_totals(&parts).map_err(|why| {
+        Error::Usage(format!(
+            "the part files are damaged or were edited: {why}; rerun the shards"
+        ))
+    })?;
+    // Every power in the files is verified afresh (one steady-state solve per distinct design)
+    // before it may rank or be reported.
+    let mut fresh: std::collections::HashMap<&[usize], design::Verified> = Default::default();
+    for d in parts.iter().flat_map(|p| &p.designs) {
+        let v = match fresh.get(d.set.as_slice()) {
+            Some(v) => *v,
+            None => {
+                let v = design::verify(network, &d.pathways(network))?;
+                fresh.insert(&d.set, v);
+                v
+            }
+        };
+        if !files::agrees(d, &v) {
+            return Err(Error::Usage(format!(
+                "a part file's design on pathway set {:?} claims the power {:e} (verified: {:?}) kT per {}, but a fresh steady-state solve gives {:e} kT: the part files were edited or damaged; rerun the shards",
+                d.set,
+                d.power,
+                d.verified.map(|v| v.0),
+                model.units.time.name(),
+                v.power
+            )));
+        }
+    }
+    let outcome = search::merge(parts)?;
     let bound = solve_bound(&model, &pairs)?;
     design_output(&model, &pairs, &bound, &outcome, format, save_root)
 }
@@ -702,6 +808,8 @@ struct SweepDone {
 /// A sweep's checkpoint: what identifies the sweep, and its finished points in order.
 #[derive(Debug, Serialize, Deserialize)]
 struct SweepCheckpoint {
+    /// [`SWEEP_CHECKPOINT_FORMAT`]: files of another version are refused.
+    format: String,
     identity: String,
     done: Vec<SweepDone>,
 }
@@ -716,7 +824,7 @@ fn sweep_progress(
         return Ok(Vec::new());
     };
     let kept: SweepCheckpoint = read_checkpoint(path, "sweep")?;
-    if kept.identity != identity {
+    if kept.format != SWEEP_CHECKPOINT_FORMAT || kept.identity != identity {
         return Err(foreign_checkpoint(path));
     }
     Ok(kept.done)
@@ -735,6 +843,7 @@ fn write_sweep_checkpoint(
     kept: usize,
 ) -> Result<(), Error> {
     let checkpoint = SweepCheckpoint {
+        format: SWEEP_CHECKPOINT_FORMAT.into(),
         identity: identity.to_string(),
         done: done.to_vec(),
     };
@@ -742,6 +851,54 @@ fn write_sweep_checkpoint(
         source,
         kept: counted(kept, "finished budget point", "finished budget points"),
     })
+}
+
+/// Checks the finished points of a sweep checkpoint (whose identity already matched): one per
+/// budget value in order, each best design valid for its budget and its power verified afresh.
+fn check_sweep_points(
+    model: &Model,
+    pairs: &PairSelection,
+    knobs: &SearchKnobs,
+    request: &SweepRequest,
+    over: SweepOver,
+    values: &[f64],
+    done: &[SweepDone],
+) -> Result<(), String> {
+    if done.len() > values.len() {
+        return Err(format!(
+            "it holds {} points of a sweep of {}",
+            done.len(),
+            values.len()
+        ));
+    }
+    let candidates = candidate_pairs(model, pairs, knobs.blind).map_err(|e| e.to_string())?;
+    files::check_candidates(&candidates, model.network.len())?;
+    for (i, (d, &value)) in done.iter().zip(values).enumerate() {
+        if d.value.to_bits() != value.to_bits() {
+            return Err(format!(
+                "its point {i} is at {}, not at the sweep's value {value}",
+                d.value
+            ));
+        }
+        if d.relaxation.is_some_and(|r| !r.is_finite()) {
+            return Err(format!("its point {i} has a relaxation that is not finite"));
+        }
+        let Some(best) = &d.best else { continue };
+        let budget = resolve_budget(model, &with_value(request.budget, over, value))
+            .map_err(|e| e.to_string())?;
+        let settings = knobs.settings(budget).map_err(|e| e.to_string())?;
+        files::check_found(best, &model.network, &candidates, &settings, true)
+            .map_err(|why| format!("point {i}: {why}"))?;
+        let fresh = design::verify(&model.network, &best.pathways(&model.network))
+            .map_err(|e| format!("point {i}: its design cannot be verified ({e})"))?;
+        if !files::agrees(best, &fresh) {
+            return Err(format!(
+                "point {i} claims the power {:e} kT, but a fresh steady-state solve of its design gives {:e} kT",
+                best.power, fresh.power
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Parses `NAME=A..B` into the quantity and its values (log-spaced for rates and wide ranges,
@@ -841,6 +998,8 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
     }
     let mut done = sweep_progress(request.checkpoint.as_deref(), &identity, request.resume)?;
     if let Some(file) = &request.checkpoint {
+        check_sweep_points(&model, &pairs, &knobs, request, over, &values, &done)
+            .map_err(|why| damaged_checkpoint(file, &why))?;
         // Written at once, so that a checkpoint that cannot be written fails before any work.
         write_sweep_checkpoint(file, &identity, &done, done.len())?;
         let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));

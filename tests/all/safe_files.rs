@@ -5,7 +5,7 @@
 
 use crate::common::{root, scratch};
 use std::os::unix::fs::symlink;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
 use std::time::{Duration, Instant};
 
@@ -425,6 +425,306 @@ fn a_checkpoint_may_not_be_the_model_a_folder_or_in_the_saved_folder() {
             .concat(),
         );
         refused(&out, "results folder");
+    }
+}
+
+/// Writes two shards of a walker search into `dir` and returns their part files.
+fn two_parts(dir: &Path) -> Vec<PathBuf> {
+    (0..2)
+        .map(|i| {
+            let shard = format!("{i}/2");
+            let out = run_in(
+                dir,
+                &[
+                    "design",
+                    &walker(),
+                    "--shard",
+                    &shard,
+                    "--max-pathways",
+                    "2",
+                    "--top",
+                    "5",
+                    "--save",
+                    "-q",
+                ],
+            );
+            assert!(out.status.success(), "{}", stderr(&out));
+            dir.join(format!("results/walker/design-part-{i}-of-2.json"))
+        })
+        .collect()
+}
+
+/// Writes `value` with `edit` applied to `path`.
+fn edited(value: &serde_json::Value, path: &Path, edit: impl Fn(&mut serde_json::Value)) {
+    let mut v = value.clone();
+    edit(&mut v);
+    std::fs::write(path, serde_json::to_string_pretty(&v).unwrap()).unwrap();
+}
+
+#[test]
+fn edited_part_files_are_refused_never_panic() {
+    let dir = scratch("safe-parts");
+    let parts = two_parts(&dir);
+    let names: Vec<&str> = parts.iter().map(|p| p.to_str().unwrap()).collect();
+    let merged = run_in(&dir, &[&["merge"][..], &names].concat());
+    assert!(merged.status.success(), "{}", stderr(&merged));
+    let original: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&parts[0]).unwrap()).unwrap();
+    assert!(original["part"]["designs"].as_array().unwrap().len() >= 2);
+    let cap = original["part"]["settings"]["budget"]["rate_cap"]
+        .as_f64()
+        .unwrap();
+    type Edit = Box<dyn Fn(&mut serde_json::Value)>;
+    let cases: Vec<(&str, Edit, &str)> = vec![
+        (
+            "shard index beyond the count",
+            Box::new(|v| v["part"]["shard"]["index"] = 5.into()),
+            "does not exist",
+        ),
+        (
+            "shard count 0",
+            Box::new(|v| v["part"]["shard"]["count"] = 0.into()),
+            "does not exist",
+        ),
+        (
+            "pair index beyond the states",
+            Box::new(|v| v["part"]["candidates"][0][0][1] = 99.into()),
+            "the model has states",
+        ),
+        (
+            "design pair beyond the states",
+            Box::new(|v| v["part"]["designs"][0]["pairs"][0][1] = 99.into()),
+            "are not those of its set",
+        ),
+        (
+            "set index beyond the candidates",
+            Box::new(|v| v["part"]["designs"][0]["set"][0] = 999.into()),
+            "candidate indices",
+        ),
+        (
+            "a shortened rate list",
+            Box::new(|v| {
+                v["part"]["designs"][0]["log_rates"]
+                    .as_array_mut()
+                    .unwrap()
+                    .pop();
+            }),
+            "log-rates",
+        ),
+        (
+            "a rate above the cap",
+            Box::new(move |v| v["part"]["designs"][0]["log_rates"][0] = (cap.ln() + 3.0).into()),
+            "above the rate cap",
+        ),
+        (
+            "a verified power of 1e9",
+            Box::new(|v| v["part"]["designs"][0]["verified"][0] = 1e9.into()),
+            "fresh steady-state solve",
+        ),
+        (
+            "a raised power that reorders the ranking",
+            Box::new(|v| {
+                let last = v["part"]["designs"].as_array().unwrap().len() - 1;
+                let top = v["part"]["designs"][0]["power"].as_f64().unwrap();
+                v["part"]["designs"][last]["power"] = (top * 1.5 + 1.0).into();
+            }),
+            "fresh steady-state solve",
+        ),
+        (
+            "counts that overflow",
+            Box::new(|v| v["part"]["branches"][0]["scorings"] = u64::MAX.into()),
+            "2^64",
+        ),
+        (
+            "no version",
+            Box::new(|v| {
+                v.as_object_mut().unwrap().remove("format");
+            }),
+            "not a part file",
+        ),
+        (
+            "another version",
+            Box::new(|v| v["format"] = "ergopath-design-part/0".into()),
+            "rerun its shard",
+        ),
+        (
+            "pairs beyond the states",
+            Box::new(|v| v["pairs"] = serde_json::json!([[0, 9]])),
+            "pair selection",
+        ),
+    ];
+    let tampered = dir.join("tampered.json");
+    for (what, edit, phrase) in cases {
+        edited(&original, &tampered, edit);
+        let out = run_in(&dir, &["merge", tampered.to_str().unwrap(), names[1]]);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{what}: {err}");
+        assert!(
+            err.contains(phrase),
+            "{what}: expected '{phrase}' in:\n{err}"
+        );
+        assert!(out.stdout.is_empty(), "{what}");
+    }
+    // A FIFO or a folder given as a part file is refused without blocking.
+    let fifo = dir.join("part.fifo");
+    assert!(Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .unwrap()
+        .success());
+    for bad in [fifo.to_str().unwrap(), dir.to_str().unwrap()] {
+        let out = run_in(&dir, &["merge", bad, names[1]]);
+        refused(&out, "not a regular file");
+    }
+}
+
+#[test]
+fn edited_checkpoints_are_refused_never_panic() {
+    let dir = scratch("safe-checkpoints");
+    let ring6 = ring6();
+    let args = [
+        &["design", ring6.as_str()][..],
+        &RING6_SEARCH,
+        &["--checkpoint", "ck.json"],
+    ]
+    .concat();
+    let out = run_in(&dir, &[&args[..], &["--stop-after-branches=3"]].concat());
+    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
+    let path = dir.join("ck.json");
+    let original: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+    assert!(!original["finished"].as_array().unwrap().is_empty());
+    let with_design = original["finished"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .position(|b| !b["designs"].as_array().unwrap().is_empty())
+        .unwrap();
+    type Edit = Box<dyn Fn(&mut serde_json::Value)>;
+    let cases: Vec<(&str, Edit, &str)> = vec![
+        (
+            "a branch beyond the candidates",
+            Box::new(|v| v["finished"][0]["tally"]["branch"] = 999.into()),
+            "beyond its",
+        ),
+        (
+            "a branch twice",
+            Box::new(|v| {
+                let first = v["finished"][0].clone();
+                v["finished"].as_array_mut().unwrap().push(first);
+            }),
+            "twice",
+        ),
+        (
+            "a set beyond the candidates",
+            Box::new(move |v| v["finished"][with_design]["designs"][0]["set"][0] = 999.into()),
+            "candidate indices",
+        ),
+        (
+            "a shortened rate list",
+            Box::new(move |v| {
+                v["finished"][with_design]["designs"][0]["log_rates"]
+                    .as_array_mut()
+                    .unwrap()
+                    .pop();
+            }),
+            "log-rates",
+        ),
+        (
+            "a huge rate",
+            Box::new(move |v| {
+                v["finished"][with_design]["designs"][0]["log_rates"][0] = 1e300.into()
+            }),
+            "above the rate cap",
+        ),
+        (
+            "a raised power",
+            Box::new(move |v| {
+                let p = v["finished"][with_design]["designs"][0]["power"]
+                    .as_f64()
+                    .unwrap();
+                v["finished"][with_design]["designs"][0]["power"] = (p * 1.5 + 1.0).into();
+            }),
+            "its steady-state solve gives",
+        ),
+        (
+            "another version",
+            Box::new(|v| v["format"] = "x".into()),
+            "another model or other search settings",
+        ),
+    ];
+    let resume = [&args[..], &["--resume"]].concat();
+    for (what, edit, phrase) in cases {
+        edited(&original, &path, edit);
+        let out = run_in(&dir, &resume);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{what}: {err}");
+        assert!(
+            err.contains(phrase),
+            "{what}: expected '{phrase}' in:\n{err}"
+        );
+    }
+    // The sweep's checkpoint: a point never computed, a raised power.
+    let sweep = [
+        "sweep",
+        &walker(),
+        "--over",
+        "rate-cap=1..1e4",
+        "--points",
+        "5",
+        "-q",
+        "--checkpoint",
+        "sweep.json",
+    ];
+    let out = run_in(&dir, &[&sweep[..], &["--stop-after-points=2"]].concat());
+    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
+    let path = dir.join("sweep.json");
+    let original: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+    let cases: Vec<(&str, Edit, &str)> = vec![
+        (
+            "a point never computed",
+            Box::new(|v| {
+                let mut extra = v["done"][1].clone();
+                extra["value"] = 123.0.into();
+                v["done"].as_array_mut().unwrap().push(extra);
+            }),
+            "not at the sweep's value",
+        ),
+        (
+            "a raised power",
+            Box::new(|v| {
+                let p = v["done"][1]["best"]["power"].as_f64().unwrap();
+                v["done"][1]["best"]["power"] = (p * 2.0 + 1.0).into();
+            }),
+            "fresh steady-state solve",
+        ),
+        (
+            "a raised verified power",
+            Box::new(|v| v["done"][1]["best"]["verified"][0] = 1e9.into()),
+            "fresh steady-state solve",
+        ),
+        (
+            "too many points",
+            Box::new(|v| {
+                let first = v["done"][0].clone();
+                for _ in 0..5 {
+                    v["done"].as_array_mut().unwrap().push(first.clone());
+                }
+            }),
+            "points of a sweep of 5",
+        ),
+    ];
+    let resume = [&sweep[..], &["--resume"]].concat();
+    for (what, edit, phrase) in cases {
+        edited(&original, &path, edit);
+        let out = run_in(&dir, &resume);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{what}: {err}");
+        assert!(
+            err.contains(phrase),
+            "{what}: expected '{phrase}' in:\n{err}"
+        );
     }
 }
 

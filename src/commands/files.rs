@@ -172,7 +172,7 @@ pub fn check_found(
 }
 
 /// Sum of `values`, or an error when it overflows.
-fn total(mut values: impl Iterator<Item = u64>) -> Result<u64, String> {
+pub fn total(mut values: impl Iterator<Item = u64>) -> Result<u64, String> {
     values
         .try_fold(0u64, u64::checked_add)
         .ok_or_else(|| "its counts add up beyond 2^64".to_string())
@@ -240,7 +240,11 @@ pub fn check_part(part: &Part, network: &Network) -> Result<(), String> {
 /// Checks the totals of parts to be merged: their sums may not overflow.
 pub fn check_totals(parts: &[Part]) -> Result<(), String> {
     let tallies = || parts.iter().flat_map(|p| &p.branches);
-    total(tallies().map(|b| b.scored))?;
+    total(
+        tallies()
+            .map(|b| b.scored)
+            .chain(parts.iter().map(|p| p.singles)),
+    )?;
     total(tallies().map(|b| b.pruned))?;
     total(
         tallies()
@@ -287,6 +291,8 @@ pub fn check_branches(
         settings.budget.max_pathways.min(candidates.len()),
     );
     let scored = total(finished.iter().map(|r| r.tally.scored))?;
+    // The outcome adds the single-pathway sets to the count.
+    total([scored, candidates.len() as u64].into_iter())?;
     let pruned = total(finished.iter().map(|r| r.tally.pruned))?;
     total(finished.iter().map(|r| r.tally.scorings))?;
     if scored > space || pruned > space {

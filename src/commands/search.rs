@@ -711,6 +711,14 @@ pub fn merge(
         ));
     }
     let parts: Vec<Part> = read.into_iter().map(|(_, f)| f.part).collect();
+    if let Some(part) = parts.iter().find(|p| p.shard.count > parts.len()) {
+        let count = part.shard.count;
+        return Err(Error::Usage(format!(
+            "shard {}/{count} is one of {count} parts, but {} part files are given: give all {count} parts",
+            part.shard.index,
+            parts.len()
+        )));
+    }
     files::check_totals(&parts).map_err(|why| {
         Error::Usage(format!(
             "the part files are damaged or were edited: {why}; rerun the shards"
@@ -871,6 +879,7 @@ fn check_sweep_points(
             values.len()
         ));
     }
+    files::total(done.iter().map(|d| d.evaluated))?;
     let candidates = candidate_pairs(model, pairs, knobs.blind).map_err(|e| e.to_string())?;
     files::check_candidates(&candidates, model.network.len())?;
     for (i, (d, &value)) in done.iter().zip(values).enumerate() {
@@ -883,10 +892,18 @@ fn check_sweep_points(
         if d.relaxation.is_some_and(|r| !r.is_finite()) {
             return Err(format!("its point {i} has a relaxation that is not finite"));
         }
-        let Some(best) = &d.best else { continue };
         let budget = resolve_budget(model, &with_value(request.budget, over, value))
             .map_err(|e| e.to_string())?;
         let settings = knobs.settings(budget).map_err(|e| e.to_string())?;
+        let count = candidates.len();
+        let space = search::space_size(count, settings.budget.max_pathways.min(count));
+        if d.evaluated > space {
+            return Err(format!(
+                "its point {i} counts {} sets scored, more than the {space} sets of its search",
+                d.evaluated
+            ));
+        }
+        let Some(best) = &d.best else { continue };
         files::check_found(best, &model.network, &candidates, &settings, true)
             .map_err(|why| format!("point {i}: {why}"))?;
         let fresh = design::verify(&model.network, &best.pathways(&model.network))

@@ -397,8 +397,17 @@ pub struct FolderLock {
 pub fn lock_folder(dir: &Path) -> Result<FolderLock, OutputError> {
     let folder = std::fs::File::open(dir).map_err(write_error(dir))?;
     #[cfg(unix)]
-    rustix::fs::flock(&folder, rustix::fs::FlockOperation::LockExclusive)
-        .map_err(|e| write_error(dir)(std::io::Error::from(e)))?;
+    loop {
+        use rustix::io::Errno;
+        match rustix::fs::flock(&folder, rustix::fs::FlockOperation::LockExclusive) {
+            Ok(()) => break,
+            Err(Errno::INTR) => continue,
+            // A file system without locks (some network mounts): the save goes on unlocked;
+            // its files are still staged whole and renamed in, manifest last.
+            Err(Errno::NOLCK | Errno::OPNOTSUPP | Errno::NOSYS) => break,
+            Err(e) => return Err(write_error(dir)(std::io::Error::from(e))),
+        }
+    }
     Ok(FolderLock { _folder: folder })
 }
 

@@ -826,3 +826,150 @@ fn control_characters_never_reach_the_terminal_or_the_report() {
     assert_eq!(out.status.code(), Some(2));
     assert!(!stderr(&out).contains('\u{1b}'));
 }
+
+/// JSON pointers to every number in `value`.
+fn number_paths(value: &serde_json::Value, at: String, out: &mut Vec<String>) {
+    match value {
+        serde_json::Value::Number(_) => out.push(at),
+        serde_json::Value::Array(items) => {
+            for (i, v) in items.iter().enumerate() {
+                number_paths(v, format!("{at}/{i}"), out);
+            }
+        }
+        serde_json::Value::Object(map) => {
+            for (k, v) in map {
+                number_paths(v, format!("{at}/{k}"), out);
+            }
+        }
+        _ => {}
+    }
+}
+
+/// Every number of a file replaced by each of a few hostile values, `run` on the result:
+/// it may refuse or accept, never panic.
+fn mutate_every_number(original: &Path, run: &dyn Fn(&Path) -> bool) {
+    let value: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(original).unwrap()).unwrap();
+    let mut paths = Vec::new();
+    number_paths(&value, String::new(), &mut paths);
+    assert!(paths.len() > 20);
+    let tampered = original.with_extension("tampered.json");
+    let hostile: [serde_json::Value; 4] = [
+        0.into(),
+        (-1).into(),
+        u64::MAX.into(),
+        serde_json::json!(1e300),
+    ];
+    let mut refused = 0;
+    for path in &paths {
+        for replacement in &hostile {
+            let mut v = value.clone();
+            *v.pointer_mut(path).unwrap() = replacement.clone();
+            std::fs::write(&tampered, serde_json::to_string(&v).unwrap()).unwrap();
+            let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| run(&tampered)));
+            match outcome {
+                Ok(accepted) => refused += usize::from(!accepted),
+                Err(_) => panic!("{path} = {replacement} panics"),
+            }
+        }
+    }
+    assert!(refused > paths.len(), "only {refused} refusals");
+}
+
+#[test]
+fn every_number_of_a_part_file_mutated_never_panics() {
+    use ergopath::commands::{merge, Format};
+    let dir = scratch("safe-mutated-parts");
+    let parts = two_parts(&dir);
+    let model = PathBuf::from(walker());
+    mutate_every_number(&parts[0], &|tampered| {
+        let given = [tampered.to_path_buf(), parts[1].clone()];
+        merge(&given, Some(&model), Format::Json, None).is_ok()
+    });
+}
+
+#[test]
+fn every_number_of_a_checkpoint_mutated_never_panics() {
+    use ergopath::commands::{design, DesignRequest, Format, SearchKnobs};
+    let dir = scratch("safe-mutated-checkpoint");
+    let checkpoint = dir.join("ck.json");
+    let out = run_in(
+        &dir,
+        &[
+            "design",
+            &walker(),
+            "--max-pathways",
+            "2",
+            "--top",
+            "4",
+            "-q",
+            "--checkpoint",
+            "ck.json",
+            "--stop-after-branches=2",
+        ],
+    );
+    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
+    let original = dir.join("original.json");
+    std::fs::copy(&checkpoint, &original).unwrap();
+    let model = PathBuf::from(walker());
+    mutate_every_number(&original, &|tampered| {
+        let request = DesignRequest {
+            budget: ergopath::commands::BudgetFlags {
+                max_pathways: Some(2),
+                ..Default::default()
+            },
+            knobs: SearchKnobs {
+                top: 4,
+                quiet: true,
+                threads: 1,
+                ..Default::default()
+            },
+            checkpoint: Some(tampered.to_path_buf()),
+            resume: true,
+            // Stops at once once the file is taken: only reading it is under test.
+            stop_after: Some(0),
+            format: Format::Json,
+            ..Default::default()
+        };
+        let refused = matches!(design(&model, &request), Err(ergopath::Error::Usage(_)));
+        !refused
+    });
+}
+
+#[test]
+fn every_number_of_a_sweep_checkpoint_mutated_never_panics() {
+    use ergopath::commands::{sweep, SearchKnobs, SweepRequest};
+    let dir = scratch("safe-mutated-sweep");
+    let args = [
+        "sweep",
+        &walker(),
+        "--over",
+        "rate-cap=1..1e4",
+        "--points",
+        "5",
+        "-q",
+        "--checkpoint",
+        "sweep.json",
+    ];
+    let out = run_in(&dir, &[&args[..], &["--stop-after-points=2"]].concat());
+    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
+    let original = dir.join("original.json");
+    std::fs::copy(dir.join("sweep.json"), &original).unwrap();
+    let model = PathBuf::from(walker());
+    mutate_every_number(&original, &|tampered| {
+        let request = SweepRequest {
+            knobs: SearchKnobs {
+                quiet: true,
+                threads: 1,
+                ..Default::default()
+            },
+            over: "rate-cap=1..1e4".into(),
+            points: 5,
+            checkpoint: Some(tampered.to_path_buf()),
+            resume: true,
+            stop_after: Some(0),
+            ..Default::default()
+        };
+        !matches!(sweep(&model, &request), Err(ergopath::Error::Usage(_)))
+    });
+}

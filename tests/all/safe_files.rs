@@ -973,3 +973,44 @@ fn every_number_of_a_sweep_checkpoint_mutated_never_panics() {
         !matches!(sweep(&model, &request), Err(ergopath::Error::Usage(_)))
     });
 }
+
+#[test]
+fn fuzz_seeds_are_valid_files_of_this_version() {
+    let dir = scratch("safe-fuzz-seeds");
+    let fuzz = root().join("fuzz");
+    let part0 = fuzz.join("seeds-files/part-0-of-2.json");
+    let part1 = fuzz.join("part-1-of-2.json");
+    let out = run_in(
+        &dir,
+        &[
+            "merge",
+            part0.to_str().unwrap(),
+            part1.to_str().unwrap(),
+            "--model",
+            &walker(),
+        ],
+    );
+    assert!(out.status.success(), "{}", stderr(&out));
+    for (name, args) in [
+        (
+            "design-checkpoint.json",
+            vec!["design", "--max-pathways", "2", "--top", "4"],
+        ),
+        (
+            "sweep-checkpoint.json",
+            vec!["sweep", "--over", "rate-cap=1..1e4", "--points", "5"],
+        ),
+    ] {
+        std::fs::copy(fuzz.join("seeds-files").join(name), dir.join(name)).unwrap();
+        let model = walker();
+        let command = [
+            &args[..1],
+            &[model.as_str()],
+            &args[1..],
+            &["-q", "--checkpoint", name, "--resume"],
+        ]
+        .concat();
+        let out = run_in(&dir, &command);
+        assert!(out.status.success(), "{name}: {}", stderr(&out));
+    }
+}

@@ -234,7 +234,7 @@ fn committed_reports_are_rebuilt_exactly_from_their_manifests() {
 #[test]
 fn concurrent_saves_never_interleave_their_files() {
     let dir = scratch("safe-concurrent");
-    let targets = ["0.5", "0.6", "0.7", "0.8"];
+    let targets = ["0.5", "0.6", "0.7", "0.8", "0.9", "0.95"];
     // What each run prints as JSON is what it must save as JSON.
     let expected: Vec<String> = targets
         .iter()
@@ -243,7 +243,7 @@ fn concurrent_saves_never_interleave_their_files() {
             String::from_utf8(out.stdout).unwrap()
         })
         .collect();
-    for _ in 0..6 {
+    for _ in 0..20 {
         let children: Vec<_> = targets
             .iter()
             .map(|t| {

@@ -1014,3 +1014,60 @@ fn fuzz_seeds_are_valid_files_of_this_version() {
         assert!(out.status.success(), "{name}: {}", stderr(&out));
     }
 }
+
+#[test]
+fn a_failed_save_leaves_the_previous_set_whole() {
+    let dir = scratch("safe-full-save");
+    let first = run_in(&dir, &["bound", &walker(), "--target", "0.5", "--save"]);
+    assert!(first.status.success(), "{}", stderr(&first));
+    let folder = dir.join("results/walker");
+    let before: Vec<(String, Vec<u8>)> = names_in(&folder)
+        .into_iter()
+        .map(|n| {
+            let bytes = std::fs::read(folder.join(&n)).unwrap();
+            (n, bytes)
+        })
+        .collect();
+    // Room for the text report but not for the JSON: a disk that fills up half-way.
+    let txt = std::fs::metadata(folder.join("bound.txt")).unwrap().len();
+    let json = std::fs::metadata(folder.join("bound.json")).unwrap().len();
+    assert!(json > txt + 2048, "{txt} {json}");
+    let kib = (txt / 1024 + 1).to_string();
+    let out = run_limited(
+        &dir,
+        kib.parse().unwrap(),
+        &["bound", &walker(), "--target", "0.9", "--save"],
+    );
+    assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
+    assert!(stderr(&out).contains("cannot write"), "{}", stderr(&out));
+    let after: Vec<(String, Vec<u8>)> = names_in(&folder)
+        .into_iter()
+        .map(|n| {
+            let bytes = std::fs::read(folder.join(&n)).unwrap();
+            (n, bytes)
+        })
+        .collect();
+    assert!(before == after, "the folder changed");
+}
+
+#[test]
+fn a_checkpoint_with_the_longest_name_is_written() {
+    let dir = scratch("safe-long-name");
+    let name = format!("{}.json", "c".repeat(250));
+    let out = run_in(
+        &dir,
+        &[
+            "design",
+            &walker(),
+            "--max-pathways",
+            "2",
+            "-q",
+            "--checkpoint",
+            &name,
+        ],
+    );
+    assert!(out.status.success(), "{}", stderr(&out));
+    let kept: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join(&name)).unwrap()).unwrap();
+    assert!(!kept["finished"].as_array().unwrap().is_empty());
+}

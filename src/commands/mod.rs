@@ -85,6 +85,11 @@ fn save(
     files: &[(&str, &str)],
 ) -> Result<String, Error> {
     use crate::report::output::{self, Manifest, MANIFEST};
+    if output::safe_report_name(report).is_none() {
+        return Err(Error::Usage(format!(
+            "'{report}' cannot name saved files: give names without separators or control characters"
+        )));
+    }
     let dir = output::results_folder(root, folder)?;
     let lock = output::lock_folder(&dir)?;
     output::remove_stale_set_files(&lock, &dir);

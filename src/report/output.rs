@@ -206,14 +206,15 @@ pub fn safe_name(stem: &str) -> String {
     name
 }
 
+/// How to mend a results folder that is a link or a file.
+const FOLDER_FIX: &str = "remove it (or move it away) so that ergopath can create the folder itself, or run from another folder";
+
 /// Creates `path` as a folder unless it is one; a symbolic link or a file there is refused.
 fn ensure_folder(path: &Path) -> Result<(), OutputError> {
-    let refused = |problem: &str| {
-        OutputError::Refused {
+    let refused = |problem: &str| OutputError::Refused {
         path: path.to_path_buf(),
         problem: problem.into(),
-        fix: "remove it (or move it away) so that ergopath can create the folder itself, or run from another folder".into(),
-    }
+        fix: FOLDER_FIX.into(),
     };
     for _ in 0..2 {
         match std::fs::symlink_metadata(path) {
@@ -294,13 +295,17 @@ pub fn read_back(path: &Path) -> std::io::Result<Option<String>> {
 /// Name of the manifest of a results folder.
 pub const MANIFEST: &str = "manifest.json";
 
+/// How to mend a manifest that ergopath did not write.
+const MANIFEST_FIX: &str = "remove it: the next --save writes a new one (and report.md then lists only what is saved from then on)";
+
 /// Version tag of [`Manifest`].
 pub const MANIFEST_FORMAT: &str = "ergopath-results/1";
 
 /// What a results folder holds, as written by this tool: each saved report's name and its
 /// files (`<name>.txt`, `.json`, `.csv`, `.svg`). `report.md` is built from this list only,
-/// never from what else lies in the folder; it is written last, after every file it lists.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+/// never from what else lies in the folder; the manifest is renamed in last, after every file
+/// it lists and `report.md`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Manifest {
     pub format: String,
@@ -310,7 +315,14 @@ pub struct Manifest {
 /// Extensions a report's files may have.
 pub const REPORT_FORMS: [&str; 4] = ["txt", "json", "csv", "svg"];
 
+impl Default for Manifest {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
 impl Manifest {
+    /// An empty manifest of the current version.
     pub fn new() -> Self {
         Self {
             format: MANIFEST_FORMAT.into(),
@@ -322,12 +334,10 @@ impl Manifest {
     /// wrote (unknown version, a name that is not `<report>.<form>`).
     pub fn read(dir: &Path) -> Result<Self, OutputError> {
         let path = dir.join(MANIFEST);
-        let refused = |problem: String| {
-            OutputError::Refused {
+        let refused = |problem: String| OutputError::Refused {
             path: path.clone(),
             problem,
-            fix: format!("remove it: the next --save writes a new one (and report.md then lists only what is saved from then on); it must be the {MANIFEST} that ergopath wrote"),
-        }
+            fix: MANIFEST_FIX.into(),
         };
         let exists = std::fs::symlink_metadata(&path).is_ok();
         let text = match read_back(&path).map_err(write_error(&path))? {

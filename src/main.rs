@@ -294,11 +294,32 @@ impl SearchArgs {
             seed: self.seed,
             exhaustive_limit: self.exhaustive_limit,
             beam_width: self.beam_width,
-            threads: self.threads,
+            threads: capped_threads(self.threads),
             quiet: self.quiet,
             blind: self.blind,
         }
     }
+}
+
+/// `--threads N` capped at what the machine runs at once (more threads only cost memory and
+/// time), with a note when it is lowered; 0 stays 0 (one per core).
+fn capped_threads(requested: usize) -> usize {
+    let available = std::thread::available_parallelism().map_or(1, std::num::NonZeroUsize::get);
+    if requested <= available {
+        return requested;
+    }
+    note(&format!(
+        "note: --threads {requested} is more than the {available} threads this machine runs at once; using {available}"
+    ));
+    available
+}
+
+/// Writes a line to standard error; a closed or full standard error is ignored (the exit
+/// status still tells), never a panic as with `eprintln!`.
+fn note(line: &str) {
+    let mut stderr = std::io::stderr().lock();
+    let _ = writeln!(stderr, "{}", ergopath::report::output::printable(line));
+    let _ = stderr.flush();
 }
 
 /// `I/N` with `I < N`.
@@ -507,7 +528,7 @@ fn main() -> ExitCode {
     match result {
         Ok(text) => print_ignoring_closed_pipe(&text),
         Err(error) => {
-            eprintln!("error: {error}");
+            note(&format!("error: {error}"));
             ExitCode::from(error.exit_code() as u8)
         }
     }
@@ -515,6 +536,7 @@ fn main() -> ExitCode {
 
 /// Prints to standard output; a closed pipe (e.g. `| head`) is not an error.
 fn print_ignoring_closed_pipe(text: &str) -> ExitCode {
+    let text = ergopath::report::output::printable(text);
     let mut stdout = std::io::stdout().lock();
     match stdout
         .write_all(text.as_bytes())
@@ -523,7 +545,7 @@ fn print_ignoring_closed_pipe(text: &str) -> ExitCode {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("error: cannot write to standard output: {e}");
+            note(&format!("error: cannot write to standard output: {e}"));
             ExitCode::from(1)
         }
     }

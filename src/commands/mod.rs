@@ -9,6 +9,7 @@ use crate::report::{check::check_text, steady::SteadyReport};
 use crate::steady::{self, SolveError, SteadySettings};
 use std::path::Path;
 
+mod files;
 mod search;
 pub use search::{
     compare, design, merge, sweep, BudgetFlags, CompareRequest, DesignRequest, SearchKnobs,
@@ -30,6 +31,13 @@ pub enum Error {
     /// Stopped on request (Ctrl-C) with the progress kept.
     #[error("{0}")]
     Interrupted(String),
+    /// The checkpoint file could not be written: the run stopped, the file holds `kept`.
+    #[error("{source}\n  the run stopped: the checkpoint holds {kept} (as last written)\n  fix: free space or give another --checkpoint FILE, then rerun with --resume")]
+    Checkpoint {
+        #[source]
+        source: OutputError,
+        kept: String,
+    },
 }
 
 impl Error {
@@ -37,7 +45,8 @@ impl Error {
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::Model(_) | Error::Usage(_) => 2,
-            Error::Solve(_) | Error::Output(_) => 1,
+            Error::Output(e) if e.is_bad_input() => 2,
+            Error::Solve(_) | Error::Output(_) | Error::Checkpoint { .. } => 1,
             // The conventional status of a process stopped by SIGINT.
             Error::Interrupted(_) => 130,
         }
@@ -59,26 +68,75 @@ pub fn check(path: &Path) -> Result<String, Error> {
     Ok(check_text(&model))
 }
 
-/// Writes each `(file name, contents)` into `root/<model stem>/` atomically and returns a line
-/// naming what was written.
-fn save(root: &Path, model: &Model, files: &[(&str, &str)]) -> Result<String, Error> {
-    let dir = root.join(model.stem());
-    let mut written = Vec::with_capacity(files.len());
+/// The results folder name of a model: its file stem made safe ([`output::safe_name`]).
+pub fn folder_name(model: &Model) -> String {
+    crate::report::output::safe_name(&model.stem())
+}
+
+/// Writes the forms of report `report` (each `(file name, contents)`) into `root/<folder>/` as
+/// one set, with the folder's `report.md` and `manifest.json`, and returns a line naming what
+/// was written. The folder is locked meanwhile; every file is staged before any is renamed
+/// into place, so an error leaves the previous set whole, and the manifest is renamed last.
+fn save(
+    root: &Path,
+    folder: &str,
+    title: &str,
+    report: &str,
+    files: &[(&str, &str)],
+) -> Result<String, Error> {
+    use crate::report::output::{self, Manifest, MANIFEST};
+    if output::safe_report_name(report).is_none() {
+        return Err(Error::Usage(format!(
+            "'{report}' cannot name saved files: give names without separators or control characters"
+        )));
+    }
+    let dir = output::results_folder(root, folder)?;
+    let lock = output::lock_folder(&dir)?;
+    output::remove_stale_set_files(&lock, &dir);
+    let mut manifest = Manifest::read(&dir)?;
+    manifest.reports.insert(
+        report.to_string(),
+        files.iter().map(|(name, _)| name.to_string()).collect(),
+    );
+    let mut staged = Vec::with_capacity(files.len() + 2);
+    let mut written = Vec::with_capacity(files.len() + 1);
     for (name, contents) in files {
         let path = dir.join(name);
-        crate::report::output::write_atomic(&path, contents.as_bytes())?;
+        staged.push(output::stage_in_set(&lock, &path, contents.as_bytes())?);
         written.push(path.display().to_string());
     }
-    let summary =
-        crate::report::summary::report_markdown(&dir, &model.title).map_err(|source| {
-            crate::report::output::OutputError::Write {
-                path: dir.clone(),
-                source,
-            }
-        })?;
-    let report = dir.join("report.md");
-    crate::report::output::write_atomic(&report, summary.as_bytes())?;
-    written.push(report.display().to_string());
+    let text_name = format!("{report}.txt");
+    let current = files
+        .iter()
+        .find(|(name, _)| *name == text_name)
+        .map(|(_, text)| text.to_string());
+    let summary = crate::report::summary::report_markdown(title, &manifest, &mut |stem| {
+        if stem == report {
+            Ok(current.clone())
+        } else {
+            output::read_back(&dir.join(format!("{stem}.txt")))
+        }
+    })
+    .map_err(|source| OutputError::Write {
+        path: dir.clone(),
+        source,
+    })?;
+    let summary = output::printable(&summary).into_owned();
+    let summary_path = dir.join("report.md");
+    staged.push(output::stage_in_set(
+        &lock,
+        &summary_path,
+        summary.as_bytes(),
+    )?);
+    written.push(summary_path.display().to_string());
+    staged.push(output::stage_in_set(
+        &lock,
+        &dir.join(MANIFEST),
+        to_json(&manifest)?.as_bytes(),
+    )?);
+    for file in staged {
+        file.commit()?;
+    }
     Ok(format!("\n  saved: {}\n", written.join(", ")))
 }
 
@@ -99,6 +157,28 @@ fn emit(
     save_root: Option<&Path>,
     r: Rendered,
 ) -> Result<String, Error> {
+    let folder = folder_name(model);
+    emit_in(&folder, &model.title, name, format, save_root, r)
+}
+
+/// [`emit`] into the results folder `folder` (a safe name), `report.md` titled `title`.
+fn emit_in(
+    folder: &str,
+    title: &str,
+    name: &str,
+    format: Format,
+    save_root: Option<&Path>,
+    r: Rendered,
+) -> Result<String, Error> {
+    // Titles and names from the model reach these forms; JSON escapes control characters
+    // itself, the others lose them here.
+    let clean = |text: String| crate::report::output::printable(&text).into_owned();
+    let r = Rendered {
+        text: clean(r.text),
+        json: r.json,
+        csv: r.csv.map(clean),
+        svg: r.svg.map(clean),
+    };
     let printed = match format {
         Format::Text => r.text.clone(),
         Format::Json => r.json.clone(),
@@ -114,7 +194,7 @@ fn emit(
         .zip(forms)
         .filter_map(|(n, form)| form.map(|f| (n.as_str(), f.as_str())))
         .collect();
-    let note = save(root, model, &files)?;
+    let note = save(root, folder, title, name, &files)?;
     // Machine-readable output stays clean; the note only follows the readable report.
     Ok(if format == Format::Text {
         printed + &note
@@ -418,13 +498,22 @@ pub fn new_model(name: &str) -> Result<String, Error> {
     } else {
         std::path::PathBuf::from(format!("{name}.toml"))
     };
-    if path.exists() {
-        return Err(Error::Usage(format!(
+    let exists = || {
+        Error::Usage(format!(
             "{} already exists: give another name, or remove the file first",
             path.display()
-        )));
+        ))
+    };
+    if std::fs::symlink_metadata(&path).is_ok() {
+        return Err(exists());
     }
-    crate::report::output::write_atomic(&path, TEMPLATE.as_bytes())?;
+    // Never over a file that appeared meanwhile either.
+    crate::report::output::write_new(&path, TEMPLATE.as_bytes()).map_err(|e| match e {
+        OutputError::Write { source, .. } if source.kind() == std::io::ErrorKind::AlreadyExists => {
+            exists()
+        }
+        other => Error::Output(other),
+    })?;
     Ok(format!(
         "wrote {p}, a commented three-state example to edit\n  next: ergopath check {p}\n",
         p = path.display()

@@ -3,7 +3,8 @@
 //! Turns flags and model defaults into a [`Budget`], runs the bound and the search, and hands
 //! the outcome to the reports. Like the rest of [`crate::commands`], nothing here prints.
 
-use super::{emit, resolve_pairs, Error, Format, Rendered};
+use super::files::{self, CHECKPOINT_FORMAT, PART_FORMAT, SWEEP_CHECKPOINT_FORMAT};
+use super::{emit, emit_in, folder_name, resolve_pairs, Error, Format, Rendered};
 use crate::bound::{self, design, Bound, BoundSettings};
 use crate::model::{Model, PairSelection};
 use crate::progress::Bar;
@@ -32,6 +33,8 @@ impl From<SearchError> for Error {
 /// What a checkpoint file holds: the identity of the search and its finished branches.
 #[derive(Debug, Serialize, Deserialize)]
 struct CheckpointFile {
+    /// [`CHECKPOINT_FORMAT`]: files of another version are refused.
+    format: String,
     fingerprint: String,
     settings: SearchSettings,
     candidates: Vec<Vec<(usize, usize)>>,
@@ -39,28 +42,43 @@ struct CheckpointFile {
 }
 
 /// Keeps finished branches in a file (rewritten atomically after each branch) and stops the
-/// search on Ctrl-C or, for tests, after a given number of new branches.
+/// search on Ctrl-C, on a failed write of the file or, for tests, after a given number of new
+/// branches.
 struct FileKeeper {
     path: PathBuf,
     file: std::sync::Mutex<CheckpointFile>,
     stop_after: Option<usize>,
     new_branches: std::sync::atomic::AtomicUsize,
+    /// The first failed write of the checkpoint: the search stops and the command fails.
+    failure: std::sync::Mutex<Option<crate::report::output::OutputError>>,
+    /// Finished branches in the file as last written.
+    on_disk: std::sync::atomic::AtomicUsize,
 }
 
 /// Set by the Ctrl-C handler.
 static INTERRUPTED: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
 
+/// The guarded value even if a thread panicked while holding the lock.
+fn locked<T>(mutex: &std::sync::Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    mutex
+        .lock()
+        .unwrap_or_else(std::sync::PoisonError::into_inner)
+}
+
 impl FileKeeper {
     /// A keeper for `searcher`'s search at `path`; with `resume`, the file must exist and
-    /// belong to the same search.
+    /// belong to the same search. The file is written once at once, so that a checkpoint that
+    /// cannot be written fails the command before any work is done.
     fn open(
         path: &Path,
+        network: &crate::model::Network,
         searcher: &Searcher,
         resume: bool,
         stop_after: Option<usize>,
     ) -> Result<Self, Error> {
         let (fingerprint, settings, candidates) = searcher.identity();
         let mut file = CheckpointFile {
+            format: CHECKPOINT_FORMAT.into(),
             fingerprint,
             settings,
             candidates,
@@ -68,14 +86,19 @@ impl FileKeeper {
         };
         if resume {
             let kept: CheckpointFile = read_checkpoint(path, "design")?;
-            if kept.fingerprint != file.fingerprint
+            if kept.format != file.format
+                || kept.fingerprint != file.fingerprint
                 || kept.settings != file.settings
                 || kept.candidates != file.candidates
             {
                 return Err(foreign_checkpoint(path));
             }
+            files::check_branches(&kept.finished, network, &file.candidates, &file.settings)
+                .map_err(|why| damaged_checkpoint(path, &why))?;
             file.finished = kept.finished;
         }
+        write_atomic(path, to_json(&file)?.as_bytes())?;
+        let on_disk = std::sync::atomic::AtomicUsize::new(file.finished.len());
         // The first Ctrl-C asks the search to stop after the branches in flight; a handler
         // can be set only once per process, which is all a command needs.
         let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
@@ -84,26 +107,38 @@ impl FileKeeper {
             file: std::sync::Mutex::new(file),
             stop_after,
             new_branches: std::sync::atomic::AtomicUsize::new(0),
+            failure: std::sync::Mutex::new(None),
+            on_disk,
         })
+    }
+
+    /// Finished branches in the file as last written.
+    fn on_disk(&self) -> usize {
+        self.on_disk.load(std::sync::atomic::Ordering::SeqCst)
+    }
+
+    /// The first failed write, if any.
+    fn take_failure(&self) -> Option<crate::report::output::OutputError> {
+        locked(&self.failure).take()
     }
 }
 
 impl search::Keeper for FileKeeper {
     fn finished(&self) -> Vec<search::BranchResult> {
-        self.file
-            .lock()
-            .map(|f| f.finished.clone())
-            .unwrap_or_default()
+        locked(&self.file).finished.clone()
     }
 
     fn record(&self, result: &search::BranchResult) {
         use std::sync::atomic::Ordering;
         self.new_branches.fetch_add(1, Ordering::SeqCst);
-        if let Ok(mut file) = self.file.lock() {
-            file.finished.push(result.clone());
-            // A failed write loses only this branch's record: the search itself goes on.
-            if let Ok(json) = to_json(&*file) {
-                let _ = write_atomic(&self.path, json.as_bytes());
+        let mut file = locked(&self.file);
+        file.finished.push(result.clone());
+        // A failed write stops the search (see `should_stop`) and fails the command: the file
+        // keeps what it held before, which is what the message then reports.
+        match to_json(&*file).and_then(|json| write_atomic(&self.path, json.as_bytes())) {
+            Ok(()) => self.on_disk.store(file.finished.len(), Ordering::SeqCst),
+            Err(e) => {
+                locked(&self.failure).get_or_insert(e);
             }
         }
     }
@@ -111,10 +146,90 @@ impl search::Keeper for FileKeeper {
     fn should_stop(&self) -> bool {
         use std::sync::atomic::Ordering;
         INTERRUPTED.load(Ordering::SeqCst)
+            || locked(&self.failure).is_some()
             || self
                 .stop_after
                 .is_some_and(|n| self.new_branches.load(Ordering::SeqCst) >= n)
     }
+}
+
+/// Refuses a `--checkpoint` path that is a folder or not a regular file, that is the model
+/// file itself (also through a link), or that lies in the results folder `saved_in` that
+/// `--save` writes.
+fn check_checkpoint_path(
+    checkpoint: &Path,
+    model: &Path,
+    saved_in: Option<&Path>,
+) -> Result<(), Error> {
+    let shown = checkpoint.display();
+    if let Ok(meta) = std::fs::metadata(checkpoint) {
+        if meta.is_dir() {
+            return Err(Error::Usage(format!(
+                "--checkpoint {shown} is a folder: give a file name, e.g. {}",
+                checkpoint.join("checkpoint.json").display()
+            )));
+        }
+        if !meta.is_file() {
+            return Err(Error::Usage(format!(
+                "--checkpoint {shown} is not a regular file (a FIFO or a device?): give the path of a file to write"
+            )));
+        }
+    }
+    let resolved = resolve(checkpoint);
+    if resolved.is_some() && resolved == resolve(model) || same_file(checkpoint, model) {
+        return Err(Error::Usage(format!(
+            "--checkpoint {shown} is the model file {}: the checkpoint would overwrite the model; give another file, e.g. checkpoint.json",
+            model.display()
+        )));
+    }
+    if let (Some(folder), Some(parent)) = (
+        saved_in.and_then(resolve),
+        checkpoint
+            .parent()
+            .map(|p| {
+                if p.as_os_str().is_empty() {
+                    Path::new(".")
+                } else {
+                    p
+                }
+            })
+            .and_then(resolve),
+    ) {
+        if folder == parent {
+            return Err(Error::Usage(format!(
+                "--checkpoint {shown} lies in the results folder {} that --save writes: give a file outside it",
+                folder.display()
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// The canonical form of `path`, or of its folder joined with its name when the file does not
+/// exist yet; `None` when neither resolves.
+fn resolve(path: &Path) -> Option<PathBuf> {
+    if let Ok(p) = std::fs::canonicalize(path) {
+        return Some(p);
+    }
+    let name = path.file_name()?;
+    let parent = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    Some(std::fs::canonicalize(parent).ok()?.join(name))
+}
+
+/// Whether two existing paths are the same file (also through hard links).
+fn same_file(a: &Path, b: &Path) -> bool {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        if let (Ok(x), Ok(y)) = (std::fs::metadata(a), std::fs::metadata(b)) {
+            return x.dev() == y.dev() && x.ino() == y.ino();
+        }
+    }
+    let _ = (a, b);
+    false
 }
 
 /// Budget flags; `None` falls back to the model's `[pathways]` table. Work in the model's unit.
@@ -317,7 +432,7 @@ fn searcher_for<'a>(
 
 /// Reads a checkpoint written by `command --checkpoint`, for `--resume`.
 fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -> Result<T, Error> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
+    let text = files::read_untrusted(path).map_err(|e| {
         Error::Usage(format!(
             "--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh",
             path.display()
@@ -329,6 +444,14 @@ fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -
             path.display()
         ))
     })
+}
+
+/// The refusal of a checkpoint whose content does not hold up.
+fn damaged_checkpoint(path: &Path, why: &str) -> Error {
+    Error::Usage(format!(
+        "--resume: {} is damaged or was edited: {why}; start afresh without --resume",
+        path.display()
+    ))
 }
 
 /// The refusal of a checkpoint that belongs to another search.
@@ -360,6 +483,8 @@ pub struct DesignRequest {
 /// A shard's result on disk: the search part and what `merge` needs to rebuild the report.
 #[derive(Debug, Serialize, Deserialize)]
 struct PartFile {
+    /// [`PART_FORMAT`]: files of another version are refused.
+    format: String,
     /// Model file as given to `design`.
     model: PathBuf,
     /// Allowed pairs (`None`: all).
@@ -389,6 +514,13 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             "--resume needs --checkpoint FILE: the file that the interrupted run wrote".into(),
         ));
     }
+    if let Some(file) = &request.checkpoint {
+        let saved_in = request
+            .save_root
+            .as_ref()
+            .map(|root| root.join(folder_name(&model)));
+        check_checkpoint_path(file, path, saved_in.as_deref())?;
+    }
     let bound = solve_bound(&model, &pairs)?;
     let bar = request.knobs.bar(&model);
     let searcher = searcher_for(&model, &pairs, &bound, settings, request.knobs.blind)?;
@@ -400,17 +532,52 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             .knobs
             .in_pool(|| searcher.run(shard, &bar, &search::NoCheckpoint))??,
         Some(file) => {
-            let keeper = FileKeeper::open(file, &searcher, request.resume, request.stop_after)?;
-            request
+            let keeper = FileKeeper::open(
+                file,
+                &model.network,
+                &searcher,
+                request.resume,
+                request.stop_after,
+            )?;
+            let run = request
                 .knobs
-                .in_pool(|| searcher.run(shard, &bar, &keeper))?
-                .map_err(|e| match Error::from(e) {
-                    Error::Interrupted(why) => Error::Interrupted(format!(
-                        "{why}; they are kept in {} and `--resume` continues from there",
-                        file.display()
-                    )),
-                    other => other,
-                })?
+                .in_pool(|| searcher.run(shard, &bar, &keeper))?;
+            if let Some(failure) = keeper.take_failure() {
+                return Err(Error::Checkpoint {
+                    source: failure,
+                    kept: counted(keeper.on_disk(), "finished branch", "finished branches"),
+                });
+            }
+            let part = run.map_err(|e| match e {
+                // Only what the file really holds is reported as kept.
+                SearchError::Interrupted { total, .. } => Error::Interrupted(format!(
+                    "interrupted: {} of {total} branches finished and kept in {}; `--resume` continues from there",
+                    keeper.on_disk(),
+                    file.display()
+                )),
+                other => Error::from(other),
+            })?;
+            // Designs taken from the checkpoint rank by the power it states: each ranked one
+            // has just been verified by the search, and the two must agree.
+            if request.resume {
+                let edited = part.designs.iter().find(|d| {
+                    d.verified.is_some_and(|(power, roundoff)| {
+                        !files::power_agrees(d.power, &design::Verified { power, roundoff })
+                    })
+                });
+                if let Some(d) = edited {
+                    return Err(damaged_checkpoint(
+                        file,
+                        &format!(
+                            "its design on pathway set {:?} claims the power {:e} kT, but its steady-state solve gives {:e} kT",
+                            d.set,
+                            d.power,
+                            d.verified.map_or(f64::NAN, |v| v.0)
+                        ),
+                    ));
+                }
+            }
+            part
         }
     };
     if shard == Shard::WHOLE {
@@ -437,14 +604,14 @@ fn write_part(
 ) -> Result<String, Error> {
     let Shard { index, count } = part.shard;
     let file = PartFile {
+        format: PART_FORMAT.into(),
         model: path.to_path_buf(),
         pairs: selection_of(pairs),
         part,
     };
     let root = save_root.map_or_else(|| PathBuf::from("results"), Path::to_path_buf);
-    let out = root
-        .join(model.stem())
-        .join(format!("design-part-{index}-of-{count}.json"));
+    let folder = crate::report::output::results_folder(&root, &folder_name(model))?;
+    let out = folder.join(format!("design-part-{index}-of-{count}.json"));
     write_atomic(&out, to_json(&file)?.as_bytes())?;
     let scored: u64 = file.part.branches.iter().map(|b| b.scored).sum();
     Ok(format!(
@@ -452,7 +619,7 @@ fn write_part(
         file.part.branches.len(),
         file.part.singles,
         out.display(),
-        root.join(model.stem()).join(format!("design-part-*-of-{count}.json")).display()
+        folder.join(format!("design-part-*-of-{count}.json")).display()
     ))
 }
 
@@ -481,9 +648,9 @@ pub fn merge(
     format: Format,
     save_root: Option<&Path>,
 ) -> Result<String, Error> {
-    let mut files = Vec::with_capacity(parts.len());
+    let mut read = Vec::with_capacity(parts.len());
     for path in parts {
-        let text = std::fs::read_to_string(path).map_err(|e| {
+        let text = files::read_untrusted(path).map_err(|e| {
             Error::Usage(format!(
                 "{}: cannot read the part file ({e})",
                 path.display()
@@ -495,9 +662,16 @@ pub fn merge(
                 path.display()
             ))
         })?;
-        files.push(file);
+        if file.format != PART_FORMAT {
+            return Err(Error::Usage(format!(
+                "{}: a part file of format '{}', not '{PART_FORMAT}': rerun its shard with this version of ergopath",
+                path.display(),
+                file.format
+            )));
+        }
+        read.push((path, file));
     }
-    let Some(first) = files.first() else {
+    let Some((_, first)) = read.first() else {
         return Err(Error::Usage("give the part files to merge".into()));
     };
     let model_path = model_override.map_or_else(|| first.model.clone(), Path::to_path_buf);
@@ -508,11 +682,72 @@ pub fn merge(
             model_path.display()
         )));
     }
+    let network = &model.network;
+    for (path, file) in &read {
+        let pairs_ok = file
+            .pairs
+            .as_ref()
+            .is_none_or(|list| list.iter().all(|&(a, b)| a < b && b < network.len()));
+        let checked = if pairs_ok {
+            files::check_part(&file.part, network)
+        } else {
+            Err("its pair selection names states the model does not have".into())
+        };
+        checked.map_err(|why| {
+            Error::Usage(format!(
+                "{}: the part file is damaged or was edited: {why}; rerun its shard",
+                path.display()
+            ))
+        })?;
+    }
     let pairs = match &first.pairs {
         None => PairSelection::All,
         Some(list) => PairSelection::Only(list.clone()),
     };
-    let outcome = search::merge(files.into_iter().map(|f| f.part).collect())?;
+    if read.iter().any(|(_, f)| f.pairs != first.pairs) {
+        return Err(Error::Usage(
+            "the part files come from searches over different pairs: give the parts of one search"
+                .into(),
+        ));
+    }
+    let parts: Vec<Part> = read.into_iter().map(|(_, f)| f.part).collect();
+    if let Some(part) = parts.iter().find(|p| p.shard.count > parts.len()) {
+        let count = part.shard.count;
+        return Err(Error::Usage(format!(
+            "shard {}/{count} is one of {count} parts, but {} part files are given: give all {count} parts",
+            part.shard.index,
+            parts.len()
+        )));
+    }
+    files::check_totals(&parts).map_err(|why| {
+        Error::Usage(format!(
+            "the part files are damaged or were edited: {why}; rerun the shards"
+        ))
+    })?;
+    // Every power in the files is verified afresh (one steady-state solve per distinct design)
+    // before it may rank or be reported.
+    let mut fresh: std::collections::HashMap<&[usize], design::Verified> = Default::default();
+    for d in parts.iter().flat_map(|p| &p.designs) {
+        let v = match fresh.get(d.set.as_slice()) {
+            Some(v) => *v,
+            None => {
+                let v = design::verify(network, &d.pathways(network))?;
+                fresh.insert(&d.set, v);
+                v
+            }
+        };
+        if !files::agrees(d, &v) {
+            return Err(Error::Usage(format!(
+                "a part file's design on pathway set {:?} claims the power {:e} (verified: {:?}) kT per {}, but a fresh steady-state solve gives {:e} kT: the part files were edited or damaged; rerun the shards",
+                d.set,
+                d.power,
+                d.verified.map(|v| v.0),
+                model.units.time.name(),
+                v.power
+            )));
+        }
+    }
+    let outcome = search::merge(parts)?;
     let bound = solve_bound(&model, &pairs)?;
     design_output(&model, &pairs, &bound, &outcome, format, save_root)
 }
@@ -581,6 +816,8 @@ struct SweepDone {
 /// A sweep's checkpoint: what identifies the sweep, and its finished points in order.
 #[derive(Debug, Serialize, Deserialize)]
 struct SweepCheckpoint {
+    /// [`SWEEP_CHECKPOINT_FORMAT`]: files of another version are refused.
+    format: String,
     identity: String,
     done: Vec<SweepDone>,
 }
@@ -595,10 +832,90 @@ fn sweep_progress(
         return Ok(Vec::new());
     };
     let kept: SweepCheckpoint = read_checkpoint(path, "sweep")?;
-    if kept.identity != identity {
+    if kept.format != SWEEP_CHECKPOINT_FORMAT || kept.identity != identity {
         return Err(foreign_checkpoint(path));
     }
     Ok(kept.done)
+}
+
+/// `1 thing` or `n things`.
+fn counted(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
+/// Writes the sweep checkpoint; on failure, says that `kept` points are in the file as before.
+fn write_sweep_checkpoint(
+    file: &Path,
+    identity: &str,
+    done: &[SweepDone],
+    kept: usize,
+) -> Result<(), Error> {
+    let checkpoint = SweepCheckpoint {
+        format: SWEEP_CHECKPOINT_FORMAT.into(),
+        identity: identity.to_string(),
+        done: done.to_vec(),
+    };
+    write_atomic(file, to_json(&checkpoint)?.as_bytes()).map_err(|source| Error::Checkpoint {
+        source,
+        kept: counted(kept, "finished budget point", "finished budget points"),
+    })
+}
+
+/// Checks the finished points of a sweep checkpoint (whose identity already matched): one per
+/// budget value in order, each best design valid for its budget and its power verified afresh.
+fn check_sweep_points(
+    model: &Model,
+    pairs: &PairSelection,
+    knobs: &SearchKnobs,
+    request: &SweepRequest,
+    over: SweepOver,
+    values: &[f64],
+    done: &[SweepDone],
+) -> Result<(), String> {
+    if done.len() > values.len() {
+        return Err(format!(
+            "it holds {} points of a sweep of {}",
+            done.len(),
+            values.len()
+        ));
+    }
+    files::total(done.iter().map(|d| d.evaluated))?;
+    let candidates = candidate_pairs(model, pairs, knobs.blind).map_err(|e| e.to_string())?;
+    files::check_candidates(&candidates, model.network.len())?;
+    for (i, (d, &value)) in done.iter().zip(values).enumerate() {
+        if d.value.to_bits() != value.to_bits() {
+            return Err(format!(
+                "its point {i} is at {}, not at the sweep's value {value}",
+                d.value
+            ));
+        }
+        if d.relaxation.is_some_and(|r| !r.is_finite()) {
+            return Err(format!("its point {i} has a relaxation that is not finite"));
+        }
+        let budget = resolve_budget(model, &with_value(request.budget, over, value))
+            .map_err(|e| e.to_string())?;
+        let settings = knobs.settings(budget).map_err(|e| e.to_string())?;
+        let count = candidates.len();
+        let space = search::space_size(count, settings.budget.max_pathways.min(count));
+        if d.evaluated > space {
+            return Err(format!(
+                "its point {i} counts {} sets scored, more than the {space} sets of its search",
+                d.evaluated
+            ));
+        }
+        let Some(best) = &d.best else { continue };
+        files::check_found(best, &model.network, &candidates, &settings, true)
+            .map_err(|why| format!("point {i}: {why}"))?;
+        let fresh = design::verify(&model.network, &best.pathways(&model.network))
+            .map_err(|e| format!("point {i}: its design cannot be verified ({e})"))?;
+        if !files::agrees(best, &fresh) {
+            return Err(format!(
+                "point {i} claims the power {:e} kT, but a fresh steady-state solve of its design gives {:e} kT",
+                best.power, fresh.power
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Parses `NAME=A..B` into the quantity and its values (log-spaced for rates and wide ranges,
@@ -689,8 +1006,19 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         ),
         pairs
     );
+    if let Some(file) = &request.checkpoint {
+        let saved_in = request
+            .save_root
+            .as_ref()
+            .map(|root| root.join(folder_name(&model)));
+        check_checkpoint_path(file, path, saved_in.as_deref())?;
+    }
     let mut done = sweep_progress(request.checkpoint.as_deref(), &identity, request.resume)?;
-    if request.checkpoint.is_some() {
+    if let Some(file) = &request.checkpoint {
+        check_sweep_points(&model, &pairs, &knobs, request, over, &values, &done)
+            .map_err(|why| damaged_checkpoint(file, &why))?;
+        // Written at once, so that a checkpoint that cannot be written fails before any work.
+        write_sweep_checkpoint(file, &identity, &done, done.len())?;
         let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
     }
     let bar = knobs.bar(&model);
@@ -749,11 +1077,7 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         });
         new_points += 1;
         if let Some(file) = &request.checkpoint {
-            let kept = SweepCheckpoint {
-                identity: identity.clone(),
-                done: done.clone(),
-            };
-            write_atomic(file, to_json(&kept)?.as_bytes())?;
+            write_sweep_checkpoint(file, &identity, &done, done.len() - 1)?;
         }
     }
     bar.finish();
@@ -841,13 +1165,14 @@ pub fn compare(paths: &[PathBuf], request: &CompareRequest) -> Result<String, Er
         csv: Some(report.csv()),
         svg: Some(report.svg()),
     };
-    let Some(root) = request.save_root.as_deref() else {
-        return emit(&models[0], "compare", request.format, None, rendered);
-    };
-    // Results of a comparison belong to no single model: they go to results/compare/.
-    let holder = Model {
-        source: PathBuf::from("compare"),
-        ..models[0].clone()
-    };
-    emit(&holder, "compare", request.format, Some(root), rendered)
+    // Results of a comparison belong to no single model: they go to results/compare/ (a model
+    // file named compare.toml saves to results/compare-model/).
+    emit_in(
+        "compare",
+        &models[0].title,
+        "compare",
+        request.format,
+        request.save_root.as_deref(),
+        rendered,
+    )
 }

@@ -11,6 +11,7 @@ mod file;
 mod parse;
 
 pub use error::{Diagnostic, ModelError, Position};
+pub use file::{read_text_file, ReadProblem, MODEL_SIZE_LIMIT};
 
 use crate::units::Units;
 use std::path::{Path, PathBuf};
@@ -332,21 +333,33 @@ impl Environments {
 impl Model {
     /// Reads and validates a model file.
     pub fn load(path: &Path) -> Result<Model, ModelError> {
-        let bytes = std::fs::read(path).map_err(|source| ModelError::Unreadable {
-            path: path.to_path_buf(),
-            source,
-        })?;
-        let text = String::from_utf8(bytes).map_err(|e| {
-            ModelError::at(
+        use file::{read_text_file, ReadProblem, MODEL_SIZE_LIMIT};
+        let text = read_text_file(path, MODEL_SIZE_LIMIT).map_err(|problem| match problem {
+            ReadProblem::Io(source) => ModelError::Unreadable {
+                path: path.to_path_buf(),
+                source,
+            },
+            ReadProblem::NotUtf8(offset) => ModelError::at(
                 path,
                 "",
                 None,
-                format!(
-                    "the file is not UTF-8 text (invalid byte at offset {})",
-                    e.utf8_error().valid_up_to()
-                ),
+                format!("the file is not UTF-8 text (invalid byte at offset {offset})"),
                 "save the model as UTF-8 encoded TOML text",
-            )
+            ),
+            ReadProblem::NotRegular(_) => ModelError::at(
+                path,
+                "",
+                None,
+                format!("cannot read the model file: {problem}"),
+                "give the path of a model file (TOML text)",
+            ),
+            ReadProblem::TooLarge { .. } => ModelError::at(
+                path,
+                "",
+                None,
+                format!("the model file is refused unread: {problem}"),
+                "split the model, or generate it with fewer states; model files are limited to 64 MB",
+            ),
         })?;
         Self::parse(&text, path)
     }

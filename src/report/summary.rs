@@ -1,19 +1,25 @@
-//! `report.md`: a short results report for one model's folder, rebuilt from whatever reports
-//! the folder holds (each text report in a code block, its chart beside it), so that a reader
-//! sees every result and plot on one page. Reads only the folder it summarises.
+//! `report.md`: a short results report for one model's folder (each text report in a code
+//! block, its chart beside it), so that a reader sees every result and plot on one page. Built
+//! only from the reports the folder's [`Manifest`] lists (the files this tool wrote there),
+//! never from whatever else lies in the folder.
 
-use std::path::Path;
+use super::output::Manifest;
 
 /// Order in which reports appear (others follow alphabetically).
 const ORDER: [&str; 4] = ["steady", "bound", "design", "sweep"];
 
-/// The markdown report of `dir` (file names relative to it), titled with the model's title.
-pub fn report_markdown(dir: &Path, title: &str) -> std::io::Result<String> {
-    let mut stems: Vec<String> = std::fs::read_dir(dir)?
-        .filter_map(|e| e.ok())
-        .map(|e| e.path())
-        .filter(|p| p.extension().is_some_and(|x| x == "txt"))
-        .filter_map(|p| p.file_stem().map(|s| s.to_string_lossy().into_owned()))
+/// The markdown report of the reports `manifest` lists, titled with the model's title.
+/// `text_of(name)` gives the text report `<name>.txt` (`None`: the report is left out).
+pub fn report_markdown(
+    title: &str,
+    manifest: &Manifest,
+    text_of: &mut dyn FnMut(&str) -> std::io::Result<Option<String>>,
+) -> std::io::Result<String> {
+    let mut stems: Vec<&str> = manifest
+        .reports
+        .keys()
+        .map(String::as_str)
+        .filter(|name| manifest.has(name, "txt"))
         .collect();
     let rank = |s: &str| {
         ORDER
@@ -26,14 +32,16 @@ pub fn report_markdown(dir: &Path, title: &str) -> std::io::Result<String> {
         "# Results: {title}\n\nWritten by ergopath beside the JSON and CSV files of this folder; each section is one saved report.\n"
     );
     for stem in stems {
-        let text = std::fs::read_to_string(dir.join(format!("{stem}.txt")))?;
+        let Some(text) = text_of(stem)? else {
+            continue;
+        };
         out.push_str(&format!("\n## {stem}\n\n```\n{}\n```\n", text.trim_end()));
-        if dir.join(format!("{stem}.svg")).exists() {
+        if manifest.has(stem, "svg") {
             out.push_str(&format!("\n![{stem}]({stem}.svg)\n"));
         }
         let data: Vec<String> = ["json", "csv"]
             .iter()
-            .filter(|x| dir.join(format!("{stem}.{x}")).exists())
+            .filter(|x| manifest.has(stem, x))
             .map(|x| format!("[{stem}.{x}]({stem}.{x})"))
             .collect();
         if !data.is_empty() {

@@ -14,4 +14,5 @@ mod published;
 mod reference;
 mod regimes;
 mod resume;
+mod safe_files;
 mod steady_numerics;

@@ -6,10 +6,12 @@
 //! that later stages use is the unit-free [`Network`]. This module must not solve anything:
 //! no steady states, no optimisation, no printing.
 
+pub mod caution;
 mod error;
 mod file;
 mod parse;
 
+pub use caution::{Caution, CautionKind};
 pub use error::{Diagnostic, ModelError, Position};
 pub use file::{read_text_file, ReadProblem, MODEL_SIZE_LIMIT};
 
@@ -259,6 +261,8 @@ pub struct Model {
     pub network: Network,
     pub transitions: Vec<TransitionInfo>,
     pub pathways: PathwayDefaults,
+    /// Plausibility cautions about the model as written ([`caution::of_model`]).
+    pub cautions: Vec<Caution>,
     /// The fluctuating environment, when the model has one: then the network is the joint
     /// chain over (system state, environment state) and `state_names` are `state@environment`.
     pub environments: Option<Environments>,

@@ -130,6 +130,8 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
             .map(|s| s.to_string_lossy().into_owned())
             .unwrap_or_default()
     });
+    let cautions =
+        super::caution::of_model(&units, file.temperature.is_some(), &network, &state_names);
     Ok(Model {
         title,
         source: path.to_path_buf(),
@@ -138,6 +140,7 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
         network,
         transitions,
         pathways,
+        cautions,
         environments,
     })
 }

@@ -116,6 +116,7 @@ pub struct BoundReport {
     pub speed_curve: Vec<(f64, f64)>,
     pub regime: RegimeJson,
     pub closed_forms: ClosedForms,
+    pub cautions: Vec<crate::model::Caution>,
 }
 
 /// Closed-form estimates of the headroom (model-format.md keys); `None` where not computed.
@@ -190,6 +191,27 @@ impl DesignJson {
     }
 }
 
+/// The model's cautions and those of the designs the bound report prints.
+fn bound_cautions(
+    model: &Model,
+    design: Option<&VerifiedDesign>,
+    capped: Option<(f64, &VerifiedDesign)>,
+) -> Vec<crate::model::Caution> {
+    let largest = design
+        .into_iter()
+        .chain(capped.map(|(_, d)| d))
+        .flat_map(|d| &d.pathways)
+        .map(|p| p.forward.max(p.backward))
+        .fold(0.0, f64::max);
+    let mut cautions = model.cautions.clone();
+    cautions.extend(crate::model::caution::of_design(
+        &model.units,
+        &model.network,
+        largest,
+    ));
+    cautions
+}
+
 impl BoundReport {
     #[allow(clippy::too_many_arguments)]
     pub fn new(
@@ -230,6 +252,7 @@ impl BoundReport {
                 rate_cap,
                 design: DesignJson::new(d, model, bound),
             }),
+            cautions: bound_cautions(model, design, capped),
         }
     }
 
@@ -293,6 +316,7 @@ impl BoundReport {
                 f.reason
             ));
         }
+        out.push_str(&super::cautions_text(&self.cautions));
         out
     }
 }

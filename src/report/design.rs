@@ -119,6 +119,7 @@ pub struct DesignReport {
     /// Designs left out of the ranking: their verified power is not determined by double
     /// precision (its round-off bound covers their gain over the baseline).
     pub undetermined_designs: u64,
+    pub cautions: Vec<crate::model::Caution>,
 }
 
 impl RankedDesign {
@@ -141,6 +142,23 @@ impl RankedDesign {
             added_entropy_production: found.added_entropy,
         }
     }
+}
+
+/// The model's cautions and those of the fastest ranked design.
+fn design_cautions(model: &Model, outcome: &Outcome) -> Vec<crate::model::Caution> {
+    let largest = outcome
+        .designs
+        .iter()
+        .flat_map(|f| f.pathways(&model.network))
+        .map(|p| p.forward.max(p.backward))
+        .fold(0.0, f64::max);
+    let mut cautions = model.cautions.clone();
+    cautions.extend(crate::model::caution::of_design(
+        &model.units,
+        &model.network,
+        largest,
+    ));
+    cautions
 }
 
 impl DesignReport {
@@ -168,6 +186,7 @@ impl DesignReport {
             },
             evaluated: outcome.evaluated,
             undetermined_designs: outcome.undetermined,
+            cautions: design_cautions(model, outcome),
             designs: outcome
                 .designs
                 .iter()
@@ -258,6 +277,7 @@ impl DesignReport {
             "\nRates of the ranked designs (each verified by an independent steady-state solve):\n",
         );
         out.push_str(&rates.render());
+        out.push_str(&super::cautions_text(&self.cautions));
         out
     }
 

@@ -129,3 +129,20 @@ pub fn csv_field(text: &str) -> String {
         text.to_string()
     }
 }
+
+/// The cautions block of a text report (empty when there are none).
+pub fn cautions_text(cautions: &[crate::model::Caution]) -> String {
+    if cautions.is_empty() {
+        return String::new();
+    }
+    let mut out = String::from(
+        "\nCautions (common practice, not limits; a real design needs experimental validation):\n",
+    );
+    for c in cautions {
+        let item = table::wrap(&c.message, "    ", 78);
+        out.push_str("  - ");
+        out.push_str(item.trim_start());
+        out.push('\n');
+    }
+    out
+}

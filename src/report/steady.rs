@@ -26,6 +26,7 @@ pub struct SteadyReport {
     pub power_watts_per_molecule: f64,
     /// Relative error of `drive power - power = kT * entropy production`.
     pub free_energy_balance_error: f64,
+    pub cautions: Vec<crate::model::Caution>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -73,6 +74,7 @@ impl SteadyReport {
             efficiency: obs.efficiency,
             power_watts_per_molecule: u.watts(obs.power),
             free_energy_balance_error: obs.balance_error,
+            cautions: model.cautions.clone(),
         }
     }
 
@@ -119,6 +121,7 @@ impl SteadyReport {
             "  checks               free-energy balance {:.1e}, residual {:.1e}\n",
             self.free_energy_balance_error, self.relative_residual
         ));
+        out.push_str(&super::cautions_text(&self.cautions));
         out
     }
 

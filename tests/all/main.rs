@@ -1,6 +1,7 @@
 //! All integration tests, one binary grouped by topic.
 
 mod bound;
+mod cautions;
 mod common;
 mod corpus;
 mod design;

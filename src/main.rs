@@ -70,7 +70,7 @@ enum Command {
         /// Share of the headroom the printed design reaches
         #[arg(long, default_value_t = 0.99)]
         target: f64,
-        /// Print one JSON object (keys as in the model-format documentation)
+        /// Print one JSON object (every key is listed in docs/model-format.md)
         #[arg(long)]
         json: bool,
         #[command(flatten)]
@@ -352,7 +352,7 @@ impl SaveFlag {
 
 #[derive(Args)]
 struct FormatFlags {
-    /// Print one JSON object (keys as in the model-format documentation)
+    /// Print one JSON object (every key is listed in docs/model-format.md)
     #[arg(long, conflicts_with = "csv")]
     json: bool,
     /// Print the per-transition table as CSV

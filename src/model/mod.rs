@@ -21,6 +21,10 @@ use std::path::{Path, PathBuf};
 /// Default LDB consistency tolerance in kT when a transition gives both `backward` and `drive`.
 pub const DEFAULT_LDB_TOLERANCE: f64 = 1e-6;
 
+/// Largest accepted `ldb_tolerance` (kT): beyond it `backward` and `drive` describe different
+/// physics, and a tolerance of 1e9 once let a 48 kT mismatch through.
+pub const MAX_LDB_TOLERANCE: f64 = 1.0;
+
 pub use crate::numeric::log_ratio;
 
 /// One channel of a network: a pair of opposite jumps between two distinct states.
@@ -440,6 +444,13 @@ impl Model {
             let (i, j) = (find(a)?, find(b)?);
             if i == j {
                 return Err(format!("pair '{item}' joins a state to itself"));
+            }
+            if let Some(envs) = &self.environments {
+                if envs.split(i).1 != envs.split(j).1 {
+                    return Err(format!(
+                        "pair '{item}' joins two environment states: added pathways act within one environment state and can never change it; name both states in the same environment (e.g. A@light/B@light)"
+                    ));
+                }
             }
             pairs.push((i.min(j), i.max(j)));
         }

@@ -8,7 +8,7 @@ use super::file::{
 };
 use super::{
     log_ratio, Channel, Completion, Environments, Model, ModelError, Network, PairSelection,
-    PathwayDefaults, TransitionInfo, DEFAULT_LDB_TOLERANCE,
+    PathwayDefaults, TransitionInfo, DEFAULT_LDB_TOLERANCE, MAX_LDB_TOLERANCE,
 };
 use crate::units::{EnergyUnit, TimeUnit, Units};
 use std::collections::HashMap;
@@ -62,15 +62,15 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
     let units = parse_units(&ctx, &file)?;
     let tolerance = match &file.ldb_tolerance {
         None => DEFAULT_LDB_TOLERANCE,
-        Some(t) if t.get_ref().is_finite() && *t.get_ref() > 0.0 => *t.get_ref(),
+        Some(t) if t.get_ref().is_finite() && (0.0..=MAX_LDB_TOLERANCE).contains(t.get_ref()) && *t.get_ref() > 0.0 => *t.get_ref(),
         Some(t) => {
             return ctx.at(
                 t,
                 format!(
-                    "ldb_tolerance must be a positive number, got {}",
+                    "ldb_tolerance must be a positive number of kT up to {MAX_LDB_TOLERANCE}, got {}",
                     t.get_ref()
                 ),
-                "use a small positive value in kT, e.g. ldb_tolerance = 1e-6",
+                "use a small positive value in kT, e.g. ldb_tolerance = 1e-6; a mismatch of a kT or more is a different model, so correct the rates or the drive instead",
             )
         }
     };

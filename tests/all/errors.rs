@@ -216,3 +216,33 @@ fn unreadable_and_non_utf8_files_are_bad_input() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("not UTF-8"));
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+#[test]
+fn an_ldb_tolerance_above_one_kt_is_refused() {
+    // A tolerance of 1e9 kT once let a 48 kT mismatch between `backward` and `drive` through.
+    rejects(
+        "ldb_tolerance_huge",
+        &format!("ldb_tolerance = 1e9\n{STATES}{GOOD_TRANSITION}"),
+        ":1:",
+        &["ldb_tolerance", "up to 1", "correct the rates or the drive"],
+    );
+}
+
+#[test]
+fn pathways_across_environment_states_are_refused() {
+    let out = run(&[
+        "bound",
+        "problems/flicker.toml",
+        "--pairs",
+        "A@light/B@dark",
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(out.stdout.is_empty());
+    assert!(
+        stderr.contains("A@light/B@dark")
+            && stderr.contains("can never change it")
+            && stderr.contains("A@light/B@light"),
+        "{stderr}"
+    );
+}

@@ -7,6 +7,9 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 cargo build --release --quiet
 bin=./target/release/ergopath
+# Written first: every --save below rebuilds results/flicker/report.md, which includes it.
+mkdir -p results/flicker
+$bin design problems/flicker.toml --blind --quiet > results/flicker/design-blind.txt
 for model in problems/*.toml; do
   $bin steady "$model" --save > /dev/null
   $bin bound "$model" --save > /dev/null
@@ -14,7 +17,6 @@ for model in problems/*.toml; do
   $bin sweep "$model" --over rate-cap=1..1e6 --points 13 --save --quiet > /dev/null
   echo "results/$(basename "$model" .toml)/ regenerated"
 done
-$bin design problems/flicker.toml --blind --quiet > results/flicker/design-blind.txt
 $bin regimes problems/ring6.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
 $bin regimes problems/walker.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
 $bin regimes problems/photoswitch.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null

@@ -258,3 +258,69 @@ fn the_certified_bound_never_falls_below_the_exact_baseline_power() {
         certified + refused
     );
 }
+
+/// The shipped regression models (`tests/fixtures/regression/`, each rate the shortest decimal
+/// of its double) through the binary: `steady --json` within its stated bounds of the exact
+/// values, and `bound --json` either refused with a reason or certified at least the exact
+/// baseline power.
+#[test]
+fn regression_models_through_the_binary_match_exact_arithmetic() {
+    let dir = crate::common::root().join("tests/fixtures/regression");
+    let mut files: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "toml"))
+        .collect();
+    files.sort();
+    assert!(files.len() >= 4);
+    for file in files {
+        let name = file.display().to_string();
+        let model = ergopath::model::Model::load(&file).unwrap();
+        assert_eq!(
+            model.units.energy.name(),
+            "kT",
+            "{name}: kT units keep JSON exact"
+        );
+        let reference = exact_observables(&model.network);
+        let out = crate::common::run(&["steady", &name, "--json"]);
+        assert!(out.status.success(), "{name}");
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let get = |key: &str| v[key].as_f64().unwrap();
+        assert!(
+            within(get("power"), &reference.power, get("power_roundoff")),
+            "{name}: power"
+        );
+        assert!(
+            within(
+                get("drive_power"),
+                &reference.drive_power,
+                get("drive_power_roundoff")
+            ),
+            "{name}: drive power {}",
+            get("drive_power")
+        );
+        for (c, exact_flux) in reference.fluxes.iter().enumerate() {
+            let t = &v["transitions"][c];
+            let (flux, roundoff) = (
+                t["flux"].as_f64().unwrap(),
+                t["flux_roundoff"].as_f64().unwrap(),
+            );
+            assert!(within(flux, exact_flux, roundoff), "{name}: transition {c}");
+        }
+        let out = crate::common::run(&["bound", &name, "--json"]);
+        if out.status.success() {
+            let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+            let upper = v["bound"]["certified_upper"].as_f64().unwrap();
+            assert!(
+                exact(upper) >= reference.power,
+                "{name}: certified {upper} below the exact baseline power"
+            );
+        } else {
+            let stderr = String::from_utf8_lossy(&out.stderr);
+            assert!(
+                stderr.contains("fix:"),
+                "{name}: refusal without a fix: {stderr}"
+            );
+        }
+    }
+}

@@ -453,11 +453,22 @@ fn design_text(d: &DesignJson, power_unit: &str) -> String {
         ]);
     }
     let mut out = table.render();
+    if super::table::determined(d.achieved_power, d.achieved_power_roundoff) {
+        out.push_str(&format!(
+            "  verified power {} +- {:.1e} {power_unit} ({} of headroom)\n",
+            num(d.achieved_power),
+            d.achieved_power_roundoff,
+            d.fraction_of_headroom.map_or("n/a".into(), percent),
+        ));
+    } else {
+        // Never called verified: the independent solve does not determine this power.
+        out.push_str(&format!(
+            "  power of this design not determined by double precision: {} {power_unit}\n",
+            bounded(d.achieved_power, d.achieved_power_roundoff),
+        ));
+    }
     out.push_str(&format!(
-        "  verified power {} +- {:.1e} {power_unit} ({} of headroom)\n  construction predicts {} {power_unit}\n",
-        num(d.achieved_power),
-        d.achieved_power_roundoff,
-        d.fraction_of_headroom.map_or("n/a".into(), percent),
+        "  construction predicts {} {power_unit}\n",
         num(d.predicted_power)
     ));
     out

@@ -17,7 +17,20 @@ use ergopath::commands::{self, BudgetFlags, DesignRequest, Format, SearchKnobs, 
 use libfuzzer_sys::fuzz_target;
 use std::path::Path;
 
+/// The fuzzer's bytes, sealed with a matching integrity digest when they are a JSON object (so
+/// that the checks behind the digest are explored, not only the digest itself).
+fn sealed(data: &[u8]) -> Vec<u8> {
+    let Ok(mut value) = serde_json::from_slice::<serde_json::Value>(data) else {
+        return data.to_vec();
+    };
+    if !value.is_object() || commands::files::seal(&mut value).is_err() {
+        return data.to_vec();
+    }
+    serde_json::to_vec(&value).unwrap_or_else(|_| data.to_vec())
+}
+
 fuzz_target!(|data: &[u8]| {
+    let data = &sealed(data)[..];
     let model = Path::new(env!("CARGO_MANIFEST_DIR")).join("../problems/walker.toml");
     let file = std::env::temp_dir().join(format!("ergopath-fuzz-{}.json", std::process::id()));
     if std::fs::write(&file, data).is_err() {

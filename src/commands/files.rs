@@ -1,6 +1,7 @@
-//! Part files and checkpoints read back as untrusted input: a version tag, a size limit and a
-//! check of every index, count and rate against the model before any of it reaches the search
-//! or a report, so that an edited or damaged file is refused with a message, never a panic.
+//! Part files and checkpoints read back as untrusted input: a version tag, an integrity digest
+//! of the content, a size limit and a check of every index, count and rate against the model
+//! before any of it reaches the search or a report, so that an edited or damaged file is
+//! refused with a message, never a panic.
 
 use crate::model::Network;
 use crate::model::{read_text_file, ReadProblem};
@@ -18,6 +19,67 @@ pub const FILE_LIMIT: u64 = 256 << 20;
 
 /// Slack of the budget checks: rates are kept to the limits up to round-off.
 const BUDGET_SLACK: f64 = 1e-9;
+
+/// Key of the integrity digest in part files and checkpoints.
+pub const DIGEST_KEY: &str = "digest";
+
+/// FNV-1a, 64 bits (Fowler, Noll and Vo; public domain): a check against damaged or edited
+/// files, not against a forger, who could as well rerun the tool.
+fn fnv1a(bytes: &[u8]) -> u64 {
+    bytes.iter().fold(0xcbf2_9ce4_8422_2325, |h, &b| {
+        (h ^ u64::from(b)).wrapping_mul(0x0000_0100_0000_01b3)
+    })
+}
+
+/// The digest of a JSON value without its digest key, over its compact serialisation (keys in
+/// the order serde_json keeps them; every float written in its shortest round-trip form, so a
+/// file read back gives the same text).
+fn digest_of(value: &serde_json::Value) -> Result<String, serde_json::Error> {
+    Ok(format!(
+        "{:016x}",
+        fnv1a(serde_json::to_string(value)?.as_bytes())
+    ))
+}
+
+/// Adds (or replaces) the digest key of a JSON object.
+pub fn seal(value: &mut serde_json::Value) -> Result<(), serde_json::Error> {
+    if let Some(map) = value.as_object_mut() {
+        map.remove(DIGEST_KEY);
+    }
+    let digest = digest_of(value)?;
+    if let Some(map) = value.as_object_mut() {
+        map.insert(DIGEST_KEY.into(), digest.into());
+    }
+    Ok(())
+}
+
+/// The JSON text of a part file or checkpoint, sealed with its digest.
+pub fn sealed_json<T: serde::Serialize>(
+    content: &T,
+) -> Result<String, crate::report::output::OutputError> {
+    let mut value = serde_json::to_value(content)?;
+    seal(&mut value)?;
+    crate::report::output::to_json(&value)
+}
+
+/// The content of a sealed file without its digest, or why it cannot be trusted (in words).
+pub fn unsealed(text: &str) -> Result<serde_json::Value, String> {
+    let mut value: serde_json::Value = serde_json::from_str(text).map_err(|e| e.to_string())?;
+    let Some(serde_json::Value::String(stated)) =
+        value.as_object_mut().and_then(|map| map.remove(DIGEST_KEY))
+    else {
+        return Err(
+            "it carries no integrity digest (an older version wrote it, or it was edited)".into(),
+        );
+    };
+    let actual = digest_of(&value).map_err(|e| e.to_string())?;
+    if stated != actual {
+        return Err(format!(
+            "its integrity digest {stated} does not match its content ({actual}): it was edited or damaged"
+        ));
+    }
+    Ok(value)
+}
 
 /// The text of a part file or checkpoint, or why it cannot be read (in words).
 pub fn read_untrusted(path: &std::path::Path) -> Result<String, String> {

@@ -9,7 +9,7 @@ use crate::report::{check::check_text, steady::SteadyReport};
 use crate::steady::{self, SolveError, SteadySettings};
 use std::path::Path;
 
-mod files;
+pub mod files;
 mod search;
 pub use search::{
     compare, design, merge, sweep, BudgetFlags, CompareRequest, DesignRequest, SearchKnobs,

@@ -97,7 +97,7 @@ impl FileKeeper {
                 .map_err(|why| damaged_checkpoint(path, &why))?;
             file.finished = kept.finished;
         }
-        write_atomic(path, to_json(&file)?.as_bytes())?;
+        write_atomic(path, files::sealed_json(&file)?.as_bytes())?;
         let on_disk = std::sync::atomic::AtomicUsize::new(file.finished.len());
         // The first Ctrl-C asks the search to stop after the branches in flight; a handler
         // can be set only once per process, which is all a command needs.
@@ -135,7 +135,8 @@ impl search::Keeper for FileKeeper {
         file.finished.push(result.clone());
         // A failed write stops the search (see `should_stop`) and fails the command: the file
         // keeps what it held before, which is what the message then reports.
-        match to_json(&*file).and_then(|json| write_atomic(&self.path, json.as_bytes())) {
+        match files::sealed_json(&*file).and_then(|json| write_atomic(&self.path, json.as_bytes()))
+        {
             Ok(()) => self.on_disk.store(file.finished.len(), Ordering::SeqCst),
             Err(e) => {
                 locked(&self.failure).get_or_insert(e);
@@ -438,12 +439,14 @@ fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -
             path.display()
         ))
     })?;
-    serde_json::from_str(&text).map_err(|e| {
+    let not_ours = |e: String| {
         Error::Usage(format!(
-            "--resume: {} is not a checkpoint written by `ergopath {command} --checkpoint` ({e})",
+            "--resume: {} is not a checkpoint written by `ergopath {command} --checkpoint` ({e}); start afresh without --resume",
             path.display()
         ))
-    })
+    };
+    let content = files::unsealed(&text).map_err(not_ours)?;
+    serde_json::from_value(content).map_err(|e| not_ours(e.to_string()))
 }
 
 /// The refusal of a checkpoint whose content does not hold up.
@@ -612,7 +615,7 @@ fn write_part(
     let root = save_root.map_or_else(|| PathBuf::from("results"), Path::to_path_buf);
     let folder = crate::report::output::results_folder(&root, &folder_name(model))?;
     let out = folder.join(format!("design-part-{index}-of-{count}.json"));
-    write_atomic(&out, to_json(&file)?.as_bytes())?;
+    write_atomic(&out, files::sealed_json(&file)?.as_bytes())?;
     let scored: u64 = file.part.branches.iter().map(|b| b.scored).sum();
     Ok(format!(
         "shard {index}/{count}: {} branches, {scored} sets scored beyond the {} single pathways\n  written: {}\n  combine all {count} parts with: ergopath merge {}\n",
@@ -656,12 +659,15 @@ pub fn merge(
                 path.display()
             ))
         })?;
-        let file: PartFile = serde_json::from_str(&text).map_err(|e| {
+        let not_ours = |e: String| {
             Error::Usage(format!(
-                "{}: not a part file written by `ergopath design --shard` ({e}); give the design-part-*-of-N.json files",
+                "{}: not a part file written by `ergopath design --shard` ({e}); give the design-part-*-of-N.json files, or rerun that shard",
                 path.display()
             ))
-        })?;
+        };
+        let content = files::unsealed(&text).map_err(not_ours)?;
+        let file: PartFile =
+            serde_json::from_value(content).map_err(|e| not_ours(e.to_string()))?;
         if file.format != PART_FORMAT {
             return Err(Error::Usage(format!(
                 "{}: a part file of format '{}', not '{PART_FORMAT}': rerun its shard with this version of ergopath",
@@ -855,10 +861,12 @@ fn write_sweep_checkpoint(
         identity: identity.to_string(),
         done: done.to_vec(),
     };
-    write_atomic(file, to_json(&checkpoint)?.as_bytes()).map_err(|source| Error::Checkpoint {
-        source,
-        kept: counted(kept, "finished budget point", "finished budget points"),
-    })
+    files::sealed_json(&checkpoint)
+        .and_then(|json| write_atomic(file, json.as_bytes()))
+        .map_err(|source| Error::Checkpoint {
+            source,
+            kept: counted(kept, "finished budget point", "finished budget points"),
+        })
 }
 
 /// Checks the finished points of a sweep checkpoint (whose identity already matched): one per

@@ -454,10 +454,12 @@ fn two_parts(dir: &Path) -> Vec<PathBuf> {
         .collect()
 }
 
-/// Writes `value` with `edit` applied to `path`.
+/// Writes `value` with `edit` applied to `path`, sealed again with a matching integrity digest
+/// (as a careful editor could), so that the checks behind the digest are what is tested.
 fn edited(value: &serde_json::Value, path: &Path, edit: impl Fn(&mut serde_json::Value)) {
     let mut v = value.clone();
     edit(&mut v);
+    ergopath::commands::files::seal(&mut v).unwrap();
     std::fs::write(path, serde_json::to_string_pretty(&v).unwrap()).unwrap();
 }
 
@@ -865,6 +867,7 @@ fn mutate_every_number(original: &Path, run: &dyn Fn(&Path) -> bool) {
         for replacement in &hostile {
             let mut v = value.clone();
             *v.pointer_mut(path).unwrap() = replacement.clone();
+            ergopath::commands::files::seal(&mut v).unwrap();
             std::fs::write(&tampered, serde_json::to_string(&v).unwrap()).unwrap();
             let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| run(&tampered)));
             match outcome {
@@ -1070,4 +1073,37 @@ fn a_checkpoint_with_the_longest_name_is_written() {
     let kept: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(dir.join(&name)).unwrap()).unwrap();
     assert!(!kept["finished"].as_array().unwrap().is_empty());
+}
+
+#[test]
+fn an_edit_without_a_matching_digest_is_refused_as_such() {
+    // The part file's integrity digest (FNV-1a over its content) catches any edit that does not
+    // also recompute it: here one ranked power raised by a tenth.
+    let dir = scratch("safe-digest");
+    let part = root().join("fuzz/seeds-files/part-0-of-2.json");
+    let mut v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&part).unwrap()).unwrap();
+    let power = v
+        .pointer_mut("/part/designs/0/power")
+        .expect("a ranked design");
+    *power = serde_json::json!(power.as_f64().unwrap() * 1.1);
+    let edited = dir.join("part-0-of-2.json");
+    std::fs::write(&edited, serde_json::to_string_pretty(&v).unwrap()).unwrap();
+    let other = root().join("fuzz/part-1-of-2.json");
+    let out = run_in(
+        &dir,
+        &[
+            "merge",
+            edited.to_str().unwrap(),
+            other.to_str().unwrap(),
+            "--model",
+            &walker(),
+        ],
+    );
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("integrity digest") && stderr(&out).contains("edited or damaged"),
+        "{}",
+        stderr(&out)
+    );
 }

@@ -204,7 +204,7 @@ const MODELS: u64 = 2000;
 #[test]
 fn steady_fluxes_and_powers_are_exact_to_their_stated_round_off_on_random_stiff_models() {
     let accurate = check_steady_figures(0..MODELS, 3..9);
-    // Accuracy target: power and every net flux within 1e-8 relative. Measured 1925 of 2000
+    // Accuracy target: power and every net flux within 1e-8 relative. Measured 1923 of 2000
     // (96%); in the others some net flux is below 1e-20 of its channel's one-way fluxes (down
     // to 1e-160), which only arithmetic of more than 50 digits resolves; those figures carry a
     // round-off bound that marks them as not determined, and the exact value lies within it.
@@ -248,7 +248,7 @@ fn the_certified_bound_never_falls_below_the_exact_baseline_power() {
             Err(_) => refused += 1,
         }
     }
-    // Measured: 223 of 250 certified; each refusal says that round-off decides the bound
+    // Measured: 230 of 250 certified; each refusal says that round-off decides the bound
     // (implied rates spanning up to 1e-150..1e140 on these models). The floor catches a solver
     // that stops certifying, the assertions above a certificate that lies.
     eprintln!("{certified} certified, {refused} refused");

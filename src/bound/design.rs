@@ -19,6 +19,17 @@ pub struct Pathway {
 }
 
 impl Pathway {
+    /// The same channel written the other way round (rates swapped, work negated).
+    pub fn reversed(self) -> Self {
+        Self {
+            from: self.to,
+            to: self.from,
+            forward: self.backward,
+            backward: self.forward,
+            work: -self.work,
+        }
+    }
+
     /// The pathway with rates `forward`, `backward` between `from` and `to`, its work fixed by
     /// LDB with zero drive: `v = E_from - E_to - ln(forward / backward)`.
     pub fn with_rates(
@@ -67,14 +78,27 @@ pub struct Verified {
 /// Power of the baseline plus `pathways`, from an independent steady-state solve of the joint
 /// network, with its round-off bound.
 pub fn verify(network: &Network, pathways: &[Pathway]) -> Result<Verified, SolveError> {
+    verify_with_fluxes(network, pathways).map(|(verified, _)| verified)
+}
+
+/// [`verify`], with the net flux of each added pathway (from `from` to `to`) at the joint
+/// steady state.
+fn verify_with_fluxes(
+    network: &Network,
+    pathways: &[Pathway],
+) -> Result<(Verified, Vec<f64>), SolveError> {
     let extra: Vec<Channel> = pathways.iter().map(Pathway::channel).collect();
     let joint = network.with_channels(&extra);
     let p = steady::solve(&joint, &SteadySettings::default())?.probabilities;
     let observed = steady::observe(&joint, &p);
-    Ok(Verified {
-        power: observed.power,
-        roundoff: observed.power_roundoff,
-    })
+    let fluxes = observed.fluxes[network.channels.len()..].to_vec();
+    Ok((
+        Verified {
+            power: observed.power,
+            roundoff: observed.power_roundoff,
+        },
+        fluxes,
+    ))
 }
 
 /// A design with the power its construction predicts and the power verified independently.
@@ -91,7 +115,14 @@ impl VerifiedDesign {
         pathways: Vec<Pathway>,
         predicted_power: f64,
     ) -> Result<Self, SolveError> {
-        let verified = verify(network, &pathways)?;
+        let (verified, fluxes) = verify_with_fluxes(network, &pathways)?;
+        // Each pathway is written in the direction of its net flux, so that reports read
+        // "from -> to" as the way the probability goes.
+        let pathways = pathways
+            .into_iter()
+            .zip(fluxes)
+            .map(|(p, j)| if j < 0.0 { p.reversed() } else { p })
+            .collect();
         Ok(Self {
             pathways,
             predicted_power,

@@ -293,7 +293,7 @@ impl BoundReport {
             None => out.push_str("\n  No headroom: added pathways cannot raise the harvesting power of this network.\n"),
             Some(d) => {
                 out.push_str(&format!("\nAttaining design at {} of the headroom (fewest pathways; tree design):\n", percent(self.target_fraction)));
-                out.push_str(&design_text(d, p));
+                out.push_str(&design_text(d, &self.units));
                 let mut speed = Table::new(&[("share of headroom", Align::Right), (&format!("largest added rate /{t}"), Align::Right)]);
                 for row in &self.speed_table {
                     speed.row(vec![percent(row.fraction), row.speed.map_or("not reached".into(), num)]);
@@ -307,7 +307,7 @@ impl BoundReport {
                 "\nBest design with every added rate <= {} /{t} (exact convex program):\n",
                 num(c.rate_cap)
             ));
-            out.push_str(&design_text(&c.design, p));
+            out.push_str(&design_text(&c.design, &self.units));
         }
         if let Some(f) = &self.rate_capped_failure {
             out.push_str(&format!(
@@ -437,12 +437,18 @@ pub fn describe_pairs(model: &Model, pairs: &PairSelection) -> String {
     }
 }
 
-fn design_text(d: &DesignJson, power_unit: &str) -> String {
+fn design_text(d: &DesignJson, units: &UnitsJson) -> String {
+    let power_unit = units.power.as_str();
+    let (forward, backward, work) = (
+        format!("forward /{}", units.time),
+        format!("backward /{}", units.time),
+        format!("work/jump {}", units.energy),
+    );
     let mut table = Table::new(&[
-        ("pathway", Align::Left),
-        ("forward", Align::Right),
-        ("backward", Align::Right),
-        ("work/jump", Align::Right),
+        ("pathway (net flux from -> to)", Align::Left),
+        (&forward, Align::Right),
+        (&backward, Align::Right),
+        (&work, Align::Right),
     ]);
     for pw in &d.pathways {
         table.row(vec![

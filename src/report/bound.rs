@@ -345,6 +345,15 @@ impl BoundReport {
         ];
         for (name, what, estimate) in forms {
             let Some(e) = estimate else { continue };
+            // A form is shown only in its own regime (or at the crossover, where both are
+            // candidates): elsewhere its number would mislead.
+            if r.name != name && r.name != "crossover" {
+                out.push_str(&format!(
+                    "  {name:<20} not applicable (the regime is {})\n",
+                    r.name
+                ));
+                continue;
+            }
             let error = if self.bound.headroom != 0.0 {
                 let off = (e.headroom - self.bound.headroom).abs() / self.bound.headroom.abs();
                 format!("  ({what}, {} off)", percent(off))

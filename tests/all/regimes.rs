@@ -176,3 +176,31 @@ fn regimes_command_tabulates_the_sweep() {
         assert_eq!(out.status.code(), Some(2));
     }
 }
+
+/// A closed form is printed only in its own regime (or at the crossover): on the walker (near
+/// equilibrium) the strong-drive form was 31316% off, on the photoswitch (strong drive) the
+/// quadratic form is far off; both are marked not applicable instead of printed.
+#[test]
+fn closed_forms_are_printed_only_where_their_regime_applies() {
+    for (model, shown, hidden) in [
+        ("problems/walker.toml", "near equilibrium", "strong drive"),
+        (
+            "problems/photoswitch.toml",
+            "strong drive",
+            "near equilibrium",
+        ),
+    ] {
+        let out = crate::common::run(&["bound", model]);
+        let text = String::from_utf8(out.stdout).unwrap();
+        assert!(
+            text.contains(&format!(
+                "{hidden:<20} not applicable (the regime is {shown})"
+            )),
+            "{model}: {text}"
+        );
+        assert!(
+            text.contains(&format!("  {shown:<20} ")) && text.contains("% off)"),
+            "{model}"
+        );
+    }
+}

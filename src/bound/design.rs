@@ -166,13 +166,11 @@ pub fn attaining(
             )
         })
         .collect();
-    let design = match tree.speed_for(network, bound.baseline_power, headroom, target) {
-        Some(speed) => {
-            let (pathways, predicted) = tree
-                .at_speed(network, speed)
-                .expect("speed_for returns a reachable speed");
-            Some(VerifiedDesign::check(network, pathways, predicted)?)
-        }
+    let design = match tree
+        .speed_for(network, bound.baseline_power, headroom, target)
+        .and_then(|speed| tree.at_speed(network, speed))
+    {
+        Some((pathways, predicted)) => Some(VerifiedDesign::check(network, pathways, predicted)?),
         None => None,
     };
     let share = |speed: f64| {
@@ -271,11 +269,13 @@ impl TreeDesign {
             .iter()
             .map(|x| -x)
             .collect();
+        // Groups of connected components are never empty; 0 stands in for the impossible.
         let hub_of = |group: &[usize]| {
-            *group
+            group
                 .iter()
-                .max_by(|&&a, &&b| p[a].total_cmp(&p[b]))
-                .expect("non-empty group")
+                .copied()
+                .max_by(|&a, &b| p[a].total_cmp(&p[b]))
+                .unwrap_or(0)
         };
         let top = bound
             .log_p

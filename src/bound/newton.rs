@@ -94,6 +94,23 @@ pub struct Certified {
     pub iterative_solves: usize,
 }
 
+impl Certified {
+    /// No point found (not even the uniform law gave a finite `Phi`): value `-inf`, upper
+    /// `+inf`, which the bound refuses as non-finite.
+    fn unsolved(n: usize) -> Self {
+        let uniform = 1.0 / n.max(1) as f64;
+        Self {
+            log_p: vec![uniform.ln(); n],
+            p: vec![uniform; n],
+            value: f64::NEG_INFINITY,
+            upper: f64::INFINITY,
+            steps: 0,
+            analyses: 0,
+            iterative_solves: 0,
+        }
+    }
+}
+
 /// `ln p` normalised so that `sum p = 1`.
 pub fn normalise_logs(log_p: &mut [f64]) {
     let top = log_p.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -177,10 +194,13 @@ pub fn maximise(
     start: &[f64],
     settings: &NewtonSettings,
 ) -> Certified {
-    let mut x = Point::new(objective, start.to_vec()).unwrap_or_else(|| {
-        // A start where Phi is not finite: the uniform distribution always is.
-        Point::new(objective, vec![0.0; objective.n]).expect("Phi is finite at the uniform law")
-    });
+    // A start where Phi is not finite falls back to the uniform distribution, where it always
+    // is (every term is a finite rate times a finite log ratio).
+    let Some(mut x) = Point::new(objective, start.to_vec())
+        .or_else(|| Point::new(objective, vec![0.0; objective.n]))
+    else {
+        return Certified::unsolved(objective.n);
+    };
     let mut mu = vec![0.0; constraints.rows.len()];
     let mut best_upper = certificate(constraints, &x.g, &x.p, x.value, &mu);
     let mut iterations = 0;
@@ -586,9 +606,7 @@ fn reduced_solve(
     analyses: &mut Analyses,
 ) -> Result<Vec<f64>, SolveError> {
     let n = p.len();
-    let r = (0..n)
-        .max_by(|&a, &b| p[a].total_cmp(&p[b]))
-        .expect("states");
+    let r = (0..n).max_by(|&a, &b| p[a].total_cmp(&p[b])).unwrap_or(0);
     let full_rhs: Vec<f64> = (0..n).map(|k| rows.scale(k, lambda - g[k])).collect();
     if let Some(mut solved) = analyses.try_iterative(rows, |k| k != r, &[full_rhs]) {
         return Ok(solved.remove(0));
@@ -628,10 +646,11 @@ fn damped_solve(
         Some(solved) => solved,
         None => solve_columns(n, &rows.entries, &columns, &mut analyses.damped)?,
     };
-    let (w2, w1) = (
-        solved.pop().expect("two columns"),
-        solved.pop().expect("two columns"),
-    );
+    let (Some(w2), Some(w1)) = (solved.pop(), solved.pop()) else {
+        return Err(SolveError::Unresolved(
+            "the Newton system returned fewer columns than it was given".into(),
+        ));
+    };
     let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
     let nu = dot(p, &w1) / dot(p, &w2);
     Ok(w1.iter().zip(&w2).map(|(a, b)| a - nu * b).collect())

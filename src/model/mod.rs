@@ -148,10 +148,20 @@ impl Network {
     /// same amount, `d + (factor - 1) w`: the store is charged at a higher potential and the
     /// environment pays for it, so every affinity and every rate stay as they are.
     pub fn with_stored_energy_scaled(&self, factor: f64) -> Network {
-        self.relabelled(1.0, |c| {
-            (c.work * factor, c.drive + (factor - 1.0) * c.work)
-        })
-        .expect("rates are unchanged")
+        // The rates are kept as they are (not recomputed from the new labels), so that no
+        // rounding of the relabelled affinity can move them.
+        Network {
+            energies: self.energies.clone(),
+            channels: self
+                .channels
+                .iter()
+                .map(|c| Channel {
+                    work: c.work * factor,
+                    drive: c.drive + (factor - 1.0) * c.work,
+                    ..*c
+                })
+                .collect(),
+        }
     }
 
     /// Relabels every channel (`(work, drive)` from `labels`), multiplies the state energies by

@@ -448,8 +448,7 @@ impl<'a> Searcher<'a> {
             .fold(None::<local::LocalBest>, |best, next| match best {
                 Some(b) if b.power >= next.power => Some(b),
                 _ => Some(next),
-            })
-            .expect("at least one start");
+            })?;
         // Where every pathway only costs power (no headroom), the optimiser drives rates toward
         // zero without end; a floor far below the limit keeps them positive and the work per
         // jump finite, at no visible cost in power.
@@ -649,7 +648,10 @@ impl<'a> Searcher<'a> {
             .into_par_iter()
             .map(|i| self.score(&[i], f64::NEG_INFINITY, &scorings))
             .collect::<Option<Vec<_>>>()
-            .expect("no threshold, so every set is scored");
+            .ok_or_else(|| {
+                // With no threshold every set is scored; only a set without starts lands here.
+                SearchError::Settings("a single pathway could not be scored (no start)".into())
+            })?;
         let single_scorings = scorings.load(Ordering::Relaxed) as u64;
         let (ranking, branches) = match strategy {
             Strategy::Exhaustive => self.exhaustive(&singles, shard, observer, keeper)?,

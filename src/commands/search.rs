@@ -154,6 +154,21 @@ impl search::Keeper for FileKeeper {
     }
 }
 
+/// [`check_checkpoint_path`] for an optional `--checkpoint` of a run that may `--save` the
+/// model's report under `save_root`.
+fn check_checkpoint_for(
+    checkpoint: Option<&Path>,
+    model_path: &Path,
+    model: &Model,
+    save_root: Option<&Path>,
+) -> Result<(), Error> {
+    let Some(file) = checkpoint else {
+        return Ok(());
+    };
+    let saved_in = save_root.map(|root| root.join(folder_name(model)));
+    check_checkpoint_path(file, model_path, saved_in.as_deref())
+}
+
 /// Refuses a `--checkpoint` path that is a folder or not a regular file, that is the model
 /// file itself (also through a link), or that lies in the results folder `saved_in` that
 /// `--save` writes.
@@ -517,13 +532,12 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             "--resume needs --checkpoint FILE: the file that the interrupted run wrote".into(),
         ));
     }
-    if let Some(file) = &request.checkpoint {
-        let saved_in = request
-            .save_root
-            .as_ref()
-            .map(|root| root.join(folder_name(&model)));
-        check_checkpoint_path(file, path, saved_in.as_deref())?;
-    }
+    check_checkpoint_for(
+        request.checkpoint.as_deref(),
+        path,
+        &model,
+        request.save_root.as_deref(),
+    )?;
     let bound = solve_bound(&model, &pairs)?;
     let bar = request.knobs.bar(&model);
     let searcher = searcher_for(&model, &pairs, &bound, settings, request.knobs.blind)?;
@@ -1014,13 +1028,12 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         ),
         pairs
     );
-    if let Some(file) = &request.checkpoint {
-        let saved_in = request
-            .save_root
-            .as_ref()
-            .map(|root| root.join(folder_name(&model)));
-        check_checkpoint_path(file, path, saved_in.as_deref())?;
-    }
+    check_checkpoint_for(
+        request.checkpoint.as_deref(),
+        path,
+        &model,
+        request.save_root.as_deref(),
+    )?;
     let mut done = sweep_progress(request.checkpoint.as_deref(), &identity, request.resume)?;
     if let Some(file) = &request.checkpoint {
         check_sweep_points(&model, &pairs, &knobs, request, over, &values, &done)

@@ -120,3 +120,11 @@ pub fn of_design(units: &Units, network: &Network, largest_rate: f64) -> Vec<Cau
     }
     out
 }
+
+/// The model's own cautions followed by those of designs whose largest added rate is
+/// `largest_rate`.
+pub fn with_designs(model: &super::Model, largest_rate: f64) -> Vec<Caution> {
+    let mut cautions = model.cautions.clone();
+    cautions.extend(of_design(&model.units, &model.network, largest_rate));
+    cautions
+}

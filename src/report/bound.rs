@@ -203,13 +203,7 @@ fn bound_cautions(
         .flat_map(|d| &d.pathways)
         .map(|p| p.forward.max(p.backward))
         .fold(0.0, f64::max);
-    let mut cautions = model.cautions.clone();
-    cautions.extend(crate::model::caution::of_design(
-        &model.units,
-        &model.network,
-        largest,
-    ));
-    cautions
+    crate::model::caution::with_designs(model, largest)
 }
 
 impl BoundReport {

@@ -152,13 +152,7 @@ fn design_cautions(model: &Model, outcome: &Outcome) -> Vec<crate::model::Cautio
         .flat_map(|f| f.pathways(&model.network))
         .map(|p| p.forward.max(p.backward))
         .fold(0.0, f64::max);
-    let mut cautions = model.cautions.clone();
-    cautions.extend(crate::model::caution::of_design(
-        &model.units,
-        &model.network,
-        largest,
-    ));
-    cautions
+    crate::model::caution::with_designs(model, largest)
 }
 
 impl DesignReport {

@@ -667,20 +667,8 @@ fn edited_checkpoints_are_refused_never_panic() {
         );
     }
     // The sweep's checkpoint: a point never computed, a raised power.
-    let sweep = [
-        "sweep",
-        &walker(),
-        "--over",
-        "rate-cap=1..1e4",
-        "--points",
-        "5",
-        "-q",
-        "--checkpoint",
-        "sweep.json",
-    ];
-    let out = run_in(&dir, &[&sweep[..], &["--stop-after-points=2"]].concat());
-    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
-    let path = dir.join("sweep.json");
+    let sweep = sweep_args();
+    let path = interrupted_sweep(&dir);
     let original: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
     let cases: Vec<(&str, Edit, &str)> = vec![
@@ -717,7 +705,11 @@ fn edited_checkpoints_are_refused_never_panic() {
             "points of a sweep of 5",
         ),
     ];
-    let resume = [&sweep[..], &["--resume"]].concat();
+    let resume: Vec<&str> = sweep
+        .iter()
+        .map(String::as_str)
+        .chain(["--resume"])
+        .collect();
     for (what, edit, phrase) in cases {
         edited(&original, &path, edit);
         let out = run_in(&dir, &resume);
@@ -943,21 +935,8 @@ fn every_number_of_a_checkpoint_mutated_never_panics() {
 fn every_number_of_a_sweep_checkpoint_mutated_never_panics() {
     use ergopath::commands::{sweep, SearchKnobs, SweepRequest};
     let dir = scratch("safe-mutated-sweep");
-    let args = [
-        "sweep",
-        &walker(),
-        "--over",
-        "rate-cap=1..1e4",
-        "--points",
-        "5",
-        "-q",
-        "--checkpoint",
-        "sweep.json",
-    ];
-    let out = run_in(&dir, &[&args[..], &["--stop-after-points=2"]].concat());
-    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
     let original = dir.join("original.json");
-    std::fs::copy(dir.join("sweep.json"), &original).unwrap();
+    std::fs::copy(interrupted_sweep(&dir), &original).unwrap();
     let model = PathBuf::from(walker());
     mutate_every_number(&original, &|tampered| {
         let request = SweepRequest {
@@ -1106,4 +1085,32 @@ fn an_edit_without_a_matching_digest_is_refused_as_such() {
         "{}",
         stderr(&out)
     );
+}
+
+/// The walker's rate-cap sweep with its checkpoint in `sweep.json`.
+fn sweep_args() -> Vec<String> {
+    [
+        "sweep",
+        &walker(),
+        "--over",
+        "rate-cap=1..1e4",
+        "--points",
+        "5",
+        "-q",
+        "--checkpoint",
+        "sweep.json",
+    ]
+    .iter()
+    .map(|a| a.to_string())
+    .collect()
+}
+
+/// Runs that sweep in `dir` until it stops after two points; returns its checkpoint.
+fn interrupted_sweep(dir: &Path) -> PathBuf {
+    let mut args = sweep_args();
+    args.push("--stop-after-points=2".into());
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let out = run_in(dir, &args);
+    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
+    dir.join("sweep.json")
 }

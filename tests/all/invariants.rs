@@ -10,7 +10,7 @@ use ergopath::steady::{self, SteadySettings};
 use proptest::prelude::*;
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 40, ..ProptestConfig::default() })]
+    #![proptest_config(ProptestConfig { cases: 40, rng_seed: crate::common::PROPTEST_SEED, ..ProptestConfig::default() })]
 
     #[test]
     fn pipeline_keeps_its_invariants(net in network_strategy(5), cap in -1.0f64..3.0, k in 1usize..=2) {

@@ -246,8 +246,9 @@ mod tests {
     use super::*;
     use crate::model::Channel;
 
-    /// Ring of n states, rates k both ways, one step storing and drawing theta: the theory
-    /// note's closed form theta^2 k (n - 1) / (4 n^2) is exact for the quadratic estimate.
+    /// Ring of n states, rates k both ways, one step storing and drawing theta: the closed
+    /// form of methods section 6, theta^2 k (n - 1) / (4 n^2), is exact for the quadratic
+    /// estimate.
     #[test]
     fn ring_estimate_matches_the_closed_form() {
         for n in [3usize, 5, 12] {

@@ -1,5 +1,5 @@
-//! Explicit Markovian designs: the tree design that attains the bound in the fast limit (theory
-//! note, section 4), its speed-versus-gap table, the exact rate-capped design (section 5), and
+//! Explicit Markovian designs: the tree design that attains the bound in the fast limit (methods,
+//! section 4), its speed-versus-gap table, the exact rate-capped design (section 5), and
 //! the independent verification of any design by a steady-state solve of baseline + added rates.
 
 use super::conic::{self, Candidate};

@@ -28,7 +28,7 @@ proptest! {
             "newton {} vs conic {} ({})", newton.power, conic.power, conic.route);
     }
 
-    /// Theory note, section 3: for ANY added pathways obeying LDB with zero drive, the total
+    /// Methods, section 3: for ANY added pathways obeying LDB with zero drive, the total
     /// power at the joint steady state is at most Phi*, hence at most the certified upper value.
     #[test]
     fn no_added_pathways_beat_the_certified_bound(net in network_strategy(8), added in pathways_strategy()) {
@@ -56,7 +56,7 @@ proptest! {
 proptest! {
     #![proptest_config(ProptestConfig { cases: 300, rng_seed: crate::common::PROPTEST_SEED, ..ProptestConfig::default() })]
 
-    /// Theory note, section 4: the tree design holds p* stationary and tends to the bound as
+    /// Methods, section 4: the tree design holds p* stationary and tends to the bound as
     /// its traffic grows; at large traffic it reaches >= 99.9% of the headroom, verified by an
     /// independent steady-state solve, with the free-energy balance of the joint network intact.
     #[test]
@@ -419,7 +419,7 @@ fn capped_design_over_all_pairs_of_a_large_model_asks_for_pairs() {
     std::fs::remove_dir_all(dir).unwrap();
 }
 
-/// Theory note, section 6: the near-equilibrium (quadratic) estimate of the headroom becomes
+/// Methods, section 6: the near-equilibrium (quadratic) estimate of the headroom becomes
 /// exact as drives and work labels shrink, its relative error falling linearly with the scale.
 #[test]
 fn near_equilibrium_estimate_converges_linearly_in_the_drive() {

@@ -4,7 +4,7 @@
 //! h = 6.62607015e-34 J s): the transition-state-theory prefactor of Eyring, J. Chem. Phys. 3,
 //! 107 (1935). The 200-400 K plausibility range is common practice.
 
-use crate::common::{run, scratch};
+use crate::common::{run, run_json, scratch};
 
 fn model(dir: &std::path::Path, name: &str, head: &str, forward: &str) -> String {
     let path = dir.join(name);
@@ -19,14 +19,7 @@ fn model(dir: &std::path::Path, name: &str, head: &str, forward: &str) -> String
 }
 
 fn kinds(args: &[&str]) -> Vec<String> {
-    let out = run(args);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
-    v["cautions"]
+    run_json(args)["cautions"]
         .as_array()
         .unwrap()
         .iter()

@@ -26,6 +26,17 @@ pub fn run(args: &[&str]) -> Output {
         .expect("the ergopath binary runs")
 }
 
+/// Runs the binary with `args`, asserts that it succeeded, and parses its `--json` output.
+pub fn run_json(args: &[&str]) -> serde_json::Value {
+    let out = run(args);
+    assert!(
+        out.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{args:?}: {e}"))
+}
+
 /// A fresh scratch folder under the system temporary folder.
 pub fn scratch(name: &str) -> PathBuf {
     let dir = std::env::temp_dir().join(format!("ergopath-test-{}-{name}", std::process::id()));

@@ -490,7 +490,7 @@ fn huge_caps_never_rank_a_design_above_the_bound() {
     // below the certified bound within its own round-off bound, and its gain over the baseline
     // must exceed that bound (otherwise it is reported as undetermined, not ranked).
     for cap in ["1e12", "1e16", "1e20", "1e100", "1e300", "1e308"] {
-        let out = run(&[
+        let v = crate::common::run_json(&[
             "design",
             "problems/walker.toml",
             "--rate-cap",
@@ -499,12 +499,6 @@ fn huge_caps_never_rank_a_design_above_the_bound() {
             "1",
             "--json",
         ]);
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
-        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
         let upper = v["bound"]["certified_upper"].as_f64().unwrap();
         let baseline = v["baseline_power"].as_f64().unwrap();
         let ranked = v["designs"].as_array().unwrap();
@@ -564,13 +558,7 @@ fn extreme_budgets_end_promptly_and_say_what_they_did() {
     )
     .unwrap();
     let path = file.to_str().unwrap();
-    let big = run(&["design", path, "--rate-cap", "1e308", "--json"]);
-    assert!(
-        big.status.success(),
-        "{}",
-        String::from_utf8_lossy(&big.stderr)
-    );
-    let v: serde_json::Value = serde_json::from_slice(&big.stdout).unwrap();
+    let v = crate::common::run_json(&["design", path, "--rate-cap", "1e308", "--json"]);
     let upper = v["bound"]["certified_upper"].as_f64().unwrap();
     let best = &v["designs"][0];
     let (power, roundoff) = (
@@ -586,13 +574,7 @@ fn extreme_budgets_end_promptly_and_say_what_they_did() {
         best["fraction_of_headroom"].as_f64().unwrap() > 0.999,
         "{best}"
     );
-    let small = run(&["design", path, "--total-rate", "1e-310", "--json"]);
-    assert!(
-        small.status.success(),
-        "{}",
-        String::from_utf8_lossy(&small.stderr)
-    );
-    let v: serde_json::Value = serde_json::from_slice(&small.stdout).unwrap();
+    let v = crate::common::run_json(&["design", path, "--total-rate", "1e-310", "--json"]);
     assert_eq!(v["designs"].as_array().unwrap().len(), 0, "{v}");
     assert_eq!(v["undetermined_designs"].as_u64(), Some(6));
 }

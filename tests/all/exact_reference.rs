@@ -282,9 +282,7 @@ fn regression_models_through_the_binary_match_exact_arithmetic() {
             "{name}: kT units keep JSON exact"
         );
         let reference = exact_observables(&model.network);
-        let out = crate::common::run(&["steady", &name, "--json"]);
-        assert!(out.status.success(), "{name}");
-        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let v = crate::common::run_json(&["steady", &name, "--json"]);
         let get = |key: &str| v[key].as_f64().unwrap();
         assert!(
             within(get("power"), &reference.power, get("power_roundoff")),

@@ -160,7 +160,7 @@ fn regimes_command_tabulates_the_sweep() {
     assert_eq!(points.len(), 6);
     assert_eq!(points[0]["regime"], "near equilibrium");
     assert_eq!(points[5]["regime"], "strong drive");
-    // Theory note, section 6: the ring's headroom theta^2 k (n-1) / (4 n^2) at small theta
+    // Methods, section 6: the ring's headroom theta^2 k (n-1) / (4 n^2) at small theta
     // (ring6: n = 6, k = 10, theta = 0.01 kT at the first scale).
     let exact = points[0]["headroom"].as_f64().unwrap();
     let formula = 0.01f64.powi(2) * 10.0 * 5.0 / (4.0 * 36.0);

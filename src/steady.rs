@@ -91,7 +91,7 @@ pub fn solve(network: &Network, settings: &SteadySettings) -> Result<SteadyState
         .position(|p| !(p.is_finite() && *p > 0.0))
     {
         return Err(SolveError::Unresolved(format!(
-            "probability of state {bad} came out as {} ({})",
+            "probability of state {bad} came out as {:e} ({}): round-off of the sparse solve swamps it, because the rates of this network span many decades; fix: rescale or merge the fastest or slowest channels",
             probabilities[bad],
             method.name()
         )));

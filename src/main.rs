@@ -3,6 +3,7 @@
 
 use clap::{Args, CommandFactory, Parser, Subcommand};
 use ergopath::commands::{self, Format};
+use ergopath::units::{GivenEnergy, GivenRate};
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -64,9 +65,9 @@ enum Command {
         /// Where added pathways may act: `all` or pairs like A/B,C/D (default: the model's [pathways] pairs, else all)
         #[arg(long)]
         pairs: Option<String>,
-        /// Also find the exact best design with every added rate at most K (per time unit)
-        #[arg(long, value_name = "K")]
-        rate_cap: Option<f64>,
+        /// Also find the exact best design with every added rate at most K: a number per the model's time unit, or with a unit (1000/s, 5/ms)
+        #[arg(long, value_name = "K", allow_negative_numbers = true)]
+        rate_cap: Option<GivenRate>,
         /// Share of the headroom the printed design reaches
         #[arg(long, default_value_t = 0.99)]
         target: f64,
@@ -234,15 +235,15 @@ struct BudgetArgs {
     /// How many added pathways a design may use (default: [pathways] max_pathways, else 2)
     #[arg(long, value_name = "K")]
     max_pathways: Option<usize>,
-    /// Per-direction rate limit of each added pathway (per the model's time unit)
+    /// Per-direction rate limit of each added pathway: a number per the model's time unit, or with a unit (1000/s, 5/ms, 2 per us)
     #[arg(long, value_name = "K", allow_negative_numbers = true)]
-    rate_cap: Option<f64>,
-    /// Limit on the sum of all added rates, both directions
+    rate_cap: Option<GivenRate>,
+    /// Limit on the sum of all added rates, both directions (a number per the model's time unit, or 50/s)
     #[arg(long, value_name = "T", allow_negative_numbers = true)]
-    total_rate: Option<f64>,
-    /// Limit on |work per jump| of each added pathway (model's energy unit)
+    total_rate: Option<GivenRate>,
+    /// Limit on |work per jump| of each added pathway: a number in the model's energy unit, or with a unit (10kJ/mol, 4kT, '12 pN nm')
     #[arg(long, value_name = "W", allow_negative_numbers = true)]
-    work_limit: Option<f64>,
+    work_limit: Option<GivenEnergy>,
 }
 
 impl BudgetArgs {

@@ -108,6 +108,17 @@ impl TimeUnit {
         }
     }
 
+    /// Nanoseconds in one of this unit (an exact integer).
+    pub fn nanoseconds(self) -> u64 {
+        match self {
+            Self::Second => 1_000_000_000,
+            Self::Millisecond => 1_000_000,
+            Self::Microsecond => 1_000,
+            Self::Nanosecond => 1,
+            Self::Minute => 60_000_000_000,
+        }
+    }
+
     /// Seconds in one of this unit.
     pub fn seconds(self) -> f64 {
         match self {
@@ -177,6 +188,146 @@ impl Units {
     }
 }
 
+/// Why a budget value written with a unit could not be read.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum QuantityError {
+    #[error("'{0}' does not start with a number")]
+    NoNumber(String),
+    #[error("'{text}': unknown unit '{unit}'; write {expected}")]
+    UnknownUnit {
+        text: String,
+        unit: String,
+        expected: String,
+    },
+}
+
+/// A rate as a user wrote it: a bare number (per the model's own time unit) or a number per a
+/// named time unit (`1000/s`, `5 /ms`, `2 per us`).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct GivenRate {
+    pub value: f64,
+    /// `None`: the model's own time unit.
+    pub per: Option<TimeUnit>,
+}
+
+impl GivenRate {
+    /// A bare number, read in the model's own time unit.
+    pub fn bare(value: f64) -> Self {
+        Self { value, per: None }
+    }
+
+    /// The rate per the time unit of `units`, correctly rounded: the ratio of two accepted time
+    /// units is an integer (in nanoseconds), so one multiplication or division by it is the
+    /// only rounding.
+    pub fn in_units(self, units: &Units) -> f64 {
+        let Some(per) = self.per else {
+            return self.value;
+        };
+        let (model, given) = (units.time.nanoseconds(), per.nanoseconds());
+        if model >= given {
+            self.value * (model / given) as f64
+        } else {
+            self.value / (given / model) as f64
+        }
+    }
+}
+
+impl std::str::FromStr for GivenRate {
+    type Err = QuantityError;
+
+    fn from_str(text: &str) -> Result<Self, Self::Err> {
+        let (value, rest) = leading_number(text)?;
+        let unit = rest
+            .strip_prefix('/')
+            .or_else(|| rest.strip_prefix("per "))
+            .map(str::trim);
+        let per = match unit {
+            None if rest.is_empty() => None,
+            Some(name) => Some(TimeUnit::parse(name).ok_or_else(|| unknown(text, name, rates()))?),
+            None => return Err(unknown(text, rest, rates())),
+        };
+        Ok(Self { value, per })
+    }
+}
+
+/// An energy as a user wrote it: a bare number (in the model's own energy unit) or a number
+/// with a named unit (`10kJ/mol`, `4 kT`, `12 pN nm`).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct GivenEnergy {
+    pub value: f64,
+    /// `None`: the model's own energy unit.
+    pub unit: Option<EnergyUnit>,
+}
+
+impl GivenEnergy {
+    /// A bare number, read in the model's own energy unit.
+    pub fn bare(value: f64) -> Self {
+        Self { value, unit: None }
+    }
+
+    /// The energy in kT at the temperature of `units` (a `kT` value is the model's own kT).
+    pub fn to_kt(self, units: &Units) -> f64 {
+        match self.unit {
+            None => units.to_kt(self.value),
+            Some(unit) => units_in(unit, units).to_kt(self.value),
+        }
+    }
+}
+
+impl std::str::FromStr for GivenEnergy {
+    type Err = QuantityError;
+
+    fn from_str(text: &str) -> Result<Self, Self::Err> {
+        let (value, rest) = leading_number(text)?;
+        let unit = match rest {
+            "" => None,
+            name => Some(EnergyUnit::parse(name).ok_or_else(|| {
+                unknown(
+                    text,
+                    name,
+                    format!("one of {}", EnergyUnit::NAMES.join(", ")),
+                )
+            })?),
+        };
+        Ok(Self { value, unit })
+    }
+}
+
+/// The same temperature and time unit with another energy unit.
+fn units_in(energy: EnergyUnit, units: &Units) -> Units {
+    Units { energy, ..*units }
+}
+
+/// The longest prefix of `text` (after spaces) that reads as a number, and the trimmed rest.
+fn leading_number(text: &str) -> Result<(f64, &str), QuantityError> {
+    let text_trimmed = text.trim();
+    (1..=text_trimmed.len())
+        .rev()
+        .filter(|&end| text_trimmed.is_char_boundary(end))
+        .find_map(|end| {
+            let value = text_trimmed[..end].parse::<f64>().ok()?;
+            // The longest prefix wins: "1e3/ms" reads 1e3, and "10eV" reads 10 ("10e" is no
+            // number).
+            Some((value, text_trimmed[end..].trim()))
+        })
+        .ok_or_else(|| QuantityError::NoNumber(text.to_string()))
+}
+
+fn unknown(text: &str, unit: &str, expected: String) -> QuantityError {
+    QuantityError::UnknownUnit {
+        text: text.to_string(),
+        unit: unit.to_string(),
+        expected,
+    }
+}
+
+fn rates() -> String {
+    format!(
+        "a number, or a number per one of {} (e.g. 1000/s)",
+        TimeUnit::NAMES.join(", ")
+    )
+}
+
 /// Energy of one photon of the given vacuum wavelength (nm), in joules: `h c / lambda`.
 pub fn photon_energy_joules(wavelength_nm: f64) -> f64 {
     PLANCK * SPEED_OF_LIGHT / (wavelength_nm * 1e-9)
@@ -203,5 +354,46 @@ mod tests {
             assert_eq!(TimeUnit::parse(name).unwrap().name(), name);
         }
         assert!(EnergyUnit::parse("kj/mol").is_none());
+    }
+
+    #[test]
+    fn budget_values_carry_their_units() {
+        let ms = Units {
+            time: TimeUnit::Millisecond,
+            ..Units::default()
+        };
+        let rate = |text: &str| text.parse::<GivenRate>().unwrap().in_units(&ms);
+        // 1000 per second is 1 per millisecond; a bare number is already per ms.
+        assert_eq!(rate("1000/s"), 1.0);
+        assert_eq!(rate("1000 /s"), 1.0);
+        assert_eq!(rate("2 per us"), 2000.0);
+        assert_eq!(rate("1e3/ms"), 1000.0);
+        assert_eq!(rate("1000"), 1000.0);
+        assert_eq!(rate("1/min"), 1e-3 / 60.0);
+        // 10 kJ/mol at 298.15 K in kT: 1e4 / (N_A k_B T), from the exact 2019 SI values typed
+        // here (k_B = 1.380649e-23 J/K, N_A = 6.02214076e23 /mol).
+        let kt = |text: &str| text.parse::<GivenEnergy>().unwrap().to_kt(&ms);
+        let expected = 1e4 / (6.02214076e23 * 1.380649e-23 * 298.15);
+        assert!((kt("10kJ/mol") - expected).abs() <= 2.0 * f64::EPSILON * expected);
+        assert!((kt("12 pN nm") - 12e-21 / (1.380649e-23 * 298.15)).abs() < 1e-14);
+        assert_eq!(kt("4kT"), 4.0);
+        assert_eq!(kt("4"), 4.0); // the model's own unit, kT here
+        let ev = 10.0 * 1.602176634e-19 / (1.380649e-23 * 298.15);
+        assert!((kt("10eV") - ev).abs() <= 2.0 * f64::EPSILON * ev);
+        for bad in ["fast", "/s", ""] {
+            assert!(matches!(
+                bad.parse::<GivenRate>(),
+                Err(QuantityError::NoNumber(_))
+            ));
+        }
+        for bad in ["1000 Hz", "5/hour", "5 s"] {
+            let err = bad.parse::<GivenRate>().unwrap_err().to_string();
+            assert!(err.contains("1000/s"), "{bad}: {err}");
+        }
+        let err = "10 kj/mol".parse::<GivenEnergy>().unwrap_err().to_string();
+        assert!(
+            err.contains("unknown unit 'kj/mol'") && err.contains("kJ/mol"),
+            "{err}"
+        );
     }
 }

@@ -101,6 +101,21 @@ fn verify_with_fluxes(
     ))
 }
 
+/// `pathways`, each written in the direction of its net flux at the joint steady state, so that
+/// reports read "from -> to" as the way the probability goes (rates and work swap with it).
+pub fn oriented(network: &Network, pathways: Vec<Pathway>) -> Result<Vec<Pathway>, SolveError> {
+    let (_, fluxes) = verify_with_fluxes(network, &pathways)?;
+    Ok(orient(pathways, &fluxes))
+}
+
+fn orient(pathways: Vec<Pathway>, fluxes: &[f64]) -> Vec<Pathway> {
+    pathways
+        .into_iter()
+        .zip(fluxes)
+        .map(|(p, &j)| if j < 0.0 { p.reversed() } else { p })
+        .collect()
+}
+
 /// A design with the power its construction predicts and the power verified independently.
 #[derive(Debug, Clone)]
 pub struct VerifiedDesign {
@@ -116,13 +131,7 @@ impl VerifiedDesign {
         predicted_power: f64,
     ) -> Result<Self, SolveError> {
         let (verified, fluxes) = verify_with_fluxes(network, &pathways)?;
-        // Each pathway is written in the direction of its net flux, so that reports read
-        // "from -> to" as the way the probability goes.
-        let pathways = pathways
-            .into_iter()
-            .zip(fluxes)
-            .map(|(p, j)| if j < 0.0 { p.reversed() } else { p })
-            .collect();
+        let pathways = orient(pathways, &fluxes);
         Ok(Self {
             pathways,
             predicted_power,

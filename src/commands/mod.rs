@@ -7,6 +7,7 @@ use crate::model::{Model, ModelError, PairSelection};
 use crate::report::output::{to_json, OutputError};
 use crate::report::{check::check_text, steady::SteadyReport};
 use crate::steady::{self, SolveError, SteadySettings};
+use crate::units::GivenRate;
 use std::path::Path;
 
 pub mod files;
@@ -292,7 +293,7 @@ pub struct BoundRequest {
     /// `all` or `A/B,C/D`; `None` uses `[pathways] pairs` or all pairs.
     pub pairs: Option<String>,
     /// Per-direction rate cap for the exact capped design; `None` uses `[pathways] rate_cap`.
-    pub rate_cap: Option<f64>,
+    pub rate_cap: Option<GivenRate>,
     /// Share of the headroom the printed design must reach (0 < target < 1).
     pub target: f64,
     pub format: Format,
@@ -328,7 +329,10 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         )));
     }
     let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
-    let rate_cap = request.rate_cap.or(model.pathways.rate_cap);
+    let rate_cap = request
+        .rate_cap
+        .map(|cap| cap.in_units(&model.units))
+        .or(model.pathways.rate_cap);
     if let Some(cap) = rate_cap.filter(|c| !(c.is_finite() && *c > 0.0)) {
         return Err(Error::Usage(format!(
             "--rate-cap {cap}: give a positive rate per {}",
@@ -363,7 +367,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         &attaining.speeds,
         &attaining.curve,
         capped.as_ref().map(|(c, d)| (*c, d)),
-        &bound::closed_form::assess(net, &solved.baseline, solved.baseline_power),
+        &closed_forms_of(net, &pairs, &solved),
     );
     report.rate_capped_failure = capped_failure
         .map(|(rate_cap, reason)| crate::report::bound::CappedFailure { rate_cap, reason });
@@ -415,6 +419,20 @@ fn scaling_of(text: &str) -> Result<Option<[bool; 3]>, Error> {
     Ok(Some(which))
 }
 
+/// The closed forms of the universal bound, their verdict checked against it; a bound over
+/// restricted pairs is not what they estimate, so there the verdict stays the prediction.
+fn closed_forms_of(
+    net: &crate::model::Network,
+    pairs: &PairSelection,
+    solved: &crate::bound::Bound,
+) -> crate::bound::closed_form::ClosedForms {
+    let forms = crate::bound::closed_form::assess(net, &solved.baseline, solved.baseline_power);
+    match pairs {
+        PairSelection::All => forms.checked(solved.headroom()),
+        _ => forms,
+    }
+}
+
 /// `ergopath regimes`: exact headroom beside the closed forms along a scaling of the labels.
 pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
     use crate::bound::{self, closed_form, BoundSettings};
@@ -444,6 +462,7 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
             indicator: None,
             shift: None,
             regime: None,
+            predicted: None,
             near_equilibrium: None,
             strong_drive: None,
         };
@@ -455,11 +474,13 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
         match bound::solve(&net, &PairSelection::All, &BoundSettings::default()) {
             Err(e) => row.failure = Some(e.to_string()),
             Ok(b) => {
-                let forms = closed_form::assess(&net, &b.baseline, b.baseline_power);
+                let forms =
+                    closed_form::assess(&net, &b.baseline, b.baseline_power).checked(b.headroom());
                 row.headroom = Some(u.from_kt(b.headroom()));
                 row.indicator = Some(forms.indicator);
                 row.shift = forms.shift;
                 row.regime = Some(forms.regime.name());
+                row.predicted = Some(forms.prediction.name());
                 row.near_equilibrium = forms.near_equilibrium.map(|e| u.from_kt(e.headroom));
                 row.strong_drive = forms.strong_drive.map(|s| u.from_kt(s.headroom));
             }

@@ -15,6 +15,7 @@ use crate::report::sweep::{SweepPoint, SweepReport};
 use crate::search::{
     self, Budget, Observer, Outcome, Part, SearchError, SearchSettings, Searcher, Shard, Silent,
 };
+use crate::units::{GivenEnergy, GivenRate};
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 
@@ -248,13 +249,32 @@ fn same_file(a: &Path, b: &Path) -> bool {
     false
 }
 
-/// Budget flags; `None` falls back to the model's `[pathways]` table. Work in the model's unit.
+/// Budget flags; `None` falls back to the model's `[pathways]` table. A bare number is in the
+/// model's own unit; a value with a unit is converted to it.
 #[derive(Debug, Clone, Copy, Default)]
 pub struct BudgetFlags {
     pub max_pathways: Option<usize>,
-    pub rate_cap: Option<f64>,
-    pub total_rate: Option<f64>,
-    pub work_limit: Option<f64>,
+    pub rate_cap: Option<GivenRate>,
+    pub total_rate: Option<GivenRate>,
+    pub work_limit: Option<GivenEnergy>,
+}
+
+impl BudgetFlags {
+    /// The flags given as bare numbers, which mean different things in models whose units
+    /// differ: `(flag, value, whether it is a rate)`.
+    fn bare(&self) -> Vec<(&'static str, f64, bool)> {
+        let rates = [
+            ("--rate-cap", self.rate_cap),
+            ("--total-rate", self.total_rate),
+        ]
+        .into_iter()
+        .filter_map(|(name, r)| r.filter(|r| r.per.is_none()).map(|r| (name, r.value, true)));
+        let work = self
+            .work_limit
+            .filter(|w| w.unit.is_none())
+            .map(|w| ("--work-limit", w.value, false));
+        rates.chain(work).collect()
+    }
 }
 
 /// Default number of added pathways when neither a flag nor the model gives one.
@@ -269,11 +289,17 @@ fn resolve_budget(model: &Model, flags: &BudgetFlags) -> Result<Budget, Error> {
             .max_pathways
             .or(d.max_pathways)
             .unwrap_or(DEFAULT_MAX_PATHWAYS),
-        rate_cap: flags.rate_cap.or(d.rate_cap),
-        total_rate: flags.total_rate.or(d.total_rate),
+        rate_cap: flags
+            .rate_cap
+            .map(|r| r.in_units(&model.units))
+            .or(d.rate_cap),
+        total_rate: flags
+            .total_rate
+            .map(|r| r.in_units(&model.units))
+            .or(d.total_rate),
         work_limit: flags
             .work_limit
-            .map(|w| model.units.to_kt(w))
+            .map(|w| w.to_kt(&model.units))
             .or(d.work_limit),
     };
     if budget.max_pathways == 0 {
@@ -648,7 +674,13 @@ fn design_output(
     format: Format,
     save_root: Option<&Path>,
 ) -> Result<String, Error> {
-    let report = DesignReport::new(model, bound, describe(model, pairs), outcome);
+    let network = &model.network;
+    let oriented = outcome
+        .designs
+        .iter()
+        .map(|d| design::oriented(network, d.pathways(network)))
+        .collect::<Result<Vec<_>, _>>()?;
+    let report = DesignReport::new(model, bound, describe(model, pairs), outcome, &oriented);
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
@@ -990,10 +1022,10 @@ fn sweep_values(over: &str, points: usize) -> Result<(SweepOver, Vec<f64>), Erro
 
 fn with_value(mut flags: BudgetFlags, over: SweepOver, value: f64) -> BudgetFlags {
     match over {
-        SweepOver::RateCap => flags.rate_cap = Some(value),
-        SweepOver::TotalRate => flags.total_rate = Some(value),
+        SweepOver::RateCap => flags.rate_cap = Some(GivenRate::bare(value)),
+        SweepOver::TotalRate => flags.total_rate = Some(GivenRate::bare(value)),
         SweepOver::MaxPathways => flags.max_pathways = Some(value as usize),
-        SweepOver::WorkLimit => flags.work_limit = Some(value),
+        SweepOver::WorkLimit => flags.work_limit = Some(GivenEnergy::bare(value)),
     }
     flags
 }
@@ -1140,6 +1172,46 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
     )
 }
 
+/// A bare budget number means a different physical budget in models with different units (1000
+/// per ms is not 1000 per s), so `compare` asks for the unit instead of guessing.
+fn refuse_bare_budget_across_units(models: &[Model], flags: &BudgetFlags) -> Result<(), Error> {
+    // What a bare number means in a model: the time unit for rates; the energy unit for work,
+    // with the temperature when that unit is kT.
+    let meaning = |m: &Model, rate: bool| -> String {
+        let u = &m.units;
+        match (rate, u.energy) {
+            (true, _) => format!("per {}", u.time.name()),
+            (false, crate::units::EnergyUnit::KT) => format!("kT at {} K", u.temperature),
+            (false, energy) => energy.name().to_string(),
+        }
+    };
+    for (flag, value, rate) in flags.bare() {
+        let meanings: std::collections::BTreeSet<String> =
+            models.iter().map(|m| meaning(m, rate)).collect();
+        if meanings.len() < 2 {
+            continue;
+        }
+        let each: Vec<String> = models
+            .iter()
+            .map(|m| format!("{}: {}", m.source.display(), meaning(m, rate)))
+            .collect();
+        let u = &models[0].units;
+        let example = if rate {
+            format!("{value}/{}", u.time.name())
+        } else {
+            match u.energy.name() {
+                spaced if spaced.contains(' ') => format!("'{value} {spaced}'"),
+                name => format!("{value}{name}"),
+            }
+        };
+        return Err(Error::Usage(format!(
+            "{flag} {value} is a bare number, but the models use different units ({}): write the unit, e.g. {flag} {example}",
+            each.join("; ")
+        )));
+    }
+    Ok(())
+}
+
 /// Settings of `ergopath compare`.
 #[derive(Debug, Clone, Default)]
 pub struct CompareRequest {
@@ -1160,6 +1232,7 @@ pub fn compare(paths: &[PathBuf], request: &CompareRequest) -> Result<String, Er
         .iter()
         .map(|p| Model::load(p))
         .collect::<Result<Vec<_>, _>>()?;
+    refuse_bare_budget_across_units(&models, &request.budget)?;
     let knobs = SearchKnobs {
         top: 1,
         ..request.knobs

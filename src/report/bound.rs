@@ -131,7 +131,14 @@ pub struct ClosedForms {
 /// the relative shift of the near-equilibrium optimum.
 #[derive(Debug, Clone, Serialize)]
 pub struct RegimeJson {
+    /// The verdict; checked against the exact headroom when `checked` (a regime is named only
+    /// where its form is within 10%), else the prediction.
     pub name: &'static str,
+    /// What the indicators alone predict.
+    pub predicted: &'static str,
+    pub checked: bool,
+    /// Whether some closed form is within 10% of the exact headroom (`None` when unchecked).
+    pub some_form_within_10_percent: Option<bool>,
     pub indicator: f64,
     pub shift: Option<f64>,
 }
@@ -140,6 +147,9 @@ impl RegimeJson {
     pub fn of(forms: &closed_form::ClosedForms) -> Self {
         Self {
             name: forms.regime.name(),
+            predicted: forms.prediction.name(),
+            checked: forms.exact_headroom.is_some(),
+            some_form_within_10_percent: forms.exact_headroom.map(|_| forms.some_form_holds()),
             indicator: forms.indicator,
             shift: forms.shift,
         }
@@ -325,6 +335,24 @@ impl BoundReport {
             num(r.indicator),
             r.shift.map_or("-".into(), num)
         );
+        if r.checked && r.predicted != r.name {
+            out.push_str(&format!(
+                "  {:<20} the indicators point to {}, but that form is more than 10% off\n",
+                "", r.predicted
+            ));
+        }
+        if r.some_form_within_10_percent == Some(false) {
+            out.push_str(&format!(
+                "  {:<20} no closed form is within 10% of the exact headroom here\n",
+                ""
+            ));
+        }
+        if !r.checked {
+            out.push_str(&format!(
+                "  {:<20} the closed forms estimate the bound over all pairs, not this restricted one\n",
+                ""
+            ));
+        }
         let forms = [
             (
                 "near equilibrium",
@@ -348,7 +376,7 @@ impl BoundReport {
                 ));
                 continue;
             }
-            let error = if self.bound.headroom != 0.0 {
+            let error = if r.checked && self.bound.headroom != 0.0 {
                 let off = (e.headroom - self.bound.headroom).abs() / self.bound.headroom.abs();
                 format!("  ({what}, {} off)", percent(off))
             } else {

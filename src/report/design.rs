@@ -5,7 +5,7 @@
 use super::bound::{BoundNumbers, PathwayJson};
 use super::table::{num, percent, sci, wrap, Align, Table};
 use super::{csv_field, UnitsJson};
-use crate::bound::Bound;
+use crate::bound::{design::Pathway, Bound};
 use crate::model::Model;
 use crate::search::{Budget, Found, Outcome};
 use serde::Serialize;
@@ -123,9 +123,9 @@ pub struct DesignReport {
 }
 
 impl RankedDesign {
-    fn new(rank: usize, found: &Found, model: &Model, bound: &Bound) -> Self {
+    /// `pathways`: those of `found`, written along their net flux.
+    fn new(rank: usize, found: &Found, pathways: &[Pathway], model: &Model, bound: &Bound) -> Self {
         let u = &model.units;
-        let pathways = found.pathways(&model.network);
         let (power, roundoff) = found.verified.unwrap_or((found.power, f64::NAN));
         let headroom = bound.headroom();
         Self {
@@ -156,7 +156,15 @@ fn design_cautions(model: &Model, outcome: &Outcome) -> Vec<crate::model::Cautio
 }
 
 impl DesignReport {
-    pub fn new(model: &Model, bound: &Bound, pairs: String, outcome: &Outcome) -> Self {
+    /// `oriented`: the pathways of each ranked design along their net flux
+    /// ([`crate::bound::design::oriented`]).
+    pub fn new(
+        model: &Model,
+        bound: &Bound,
+        pairs: String,
+        outcome: &Outcome,
+        oriented: &[Vec<Pathway>],
+    ) -> Self {
         let s = &outcome.settings;
         Self {
             title: model.title.clone(),
@@ -184,8 +192,9 @@ impl DesignReport {
             designs: outcome
                 .designs
                 .iter()
+                .zip(oriented)
                 .enumerate()
-                .map(|(i, f)| RankedDesign::new(i + 1, f, model, bound))
+                .map(|(i, (f, pathways))| RankedDesign::new(i + 1, f, pathways, model, bound))
                 .collect(),
         }
     }
@@ -268,7 +277,7 @@ impl DesignReport {
             }
         }
         out.push_str(
-            "\nRates of the ranked designs (each verified by an independent steady-state solve):\n",
+            "\nRates of the ranked designs (each verified by an independent steady-state solve; every\npathway written in the direction of its net flux):\n",
         );
         out.push_str(&rates.render());
         out.push_str(&super::cautions_text(&self.cautions));

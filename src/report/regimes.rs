@@ -16,7 +16,11 @@ pub struct RegimePoint {
     pub failure: Option<String>,
     pub indicator: Option<f64>,
     pub shift: Option<f64>,
+    /// The checked verdict: a regime whose closed form is within 10% of `headroom`, else
+    /// crossover.
     pub regime: Option<&'static str>,
+    /// What the indicators alone predict (differs from `regime` where that form is off).
+    pub predicted: Option<&'static str>,
     pub near_equilibrium: Option<f64>,
     pub strong_drive: Option<f64>,
 }
@@ -79,7 +83,10 @@ impl RegimesReport {
                 num(pt.scale),
                 opt(pt.indicator),
                 opt(pt.shift),
-                pt.regime.unwrap_or("-").to_string(),
+                match (pt.regime, pt.predicted) {
+                    (Some(r), Some(p)) if r != p => format!("{r}*"),
+                    (r, _) => r.unwrap_or("-").to_string(),
+                },
                 pt.headroom.map_or_else(|| "not certified".to_string(), num),
                 opt(pt.near_equilibrium),
                 err(pt.near_equilibrium_error()),
@@ -96,24 +103,26 @@ impl RegimesReport {
             ));
         }
         out.push_str(&format!(
-            "  regime: strong drive when the indicator exceeds {} and the strong-drive correction is\n  under {} of the corner value, else near equilibrium when the shift is below {}, else\n  crossover (see DEVELOPERS.md).\n",
+            "  regime: the indicators predict strong drive when the indicator exceeds {} and the\n  strong-drive correction is under {} of the corner value, else near equilibrium when the\n  shift is below {}, else crossover (methods, section 6); a regime is named only where its\n  form is within {} of the exact headroom (else crossover). '*': not what the indicators\n  predicted (their form is off, or the named form holds where they predicted another).\n",
             crate::bound::closed_form::STRONG_DRIVE_ABOVE,
             crate::bound::closed_form::STRONG_DRIVE_CORRECTION_BELOW,
-            crate::bound::closed_form::NEAR_EQUILIBRIUM_SHIFT
+            crate::bound::closed_form::NEAR_EQUILIBRIUM_SHIFT,
+            percent(crate::bound::closed_form::VERDICT_ACCURACY)
         ));
         out
     }
 
     pub fn csv(&self) -> String {
-        let mut out = String::from("scale,indicator,shift,regime,headroom,near_equilibrium,near_equilibrium_error,strong_drive,strong_drive_error,failure\n");
+        let mut out = String::from("scale,indicator,shift,regime,predicted_regime,headroom,near_equilibrium,near_equilibrium_error,strong_drive,strong_drive_error,failure\n");
         let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
         for pt in &self.points {
             out.push_str(&format!(
-                "{},{},{},{},{},{},{},{},{},{}\n",
+                "{},{},{},{},{},{},{},{},{},{},{}\n",
                 pt.scale,
                 opt(pt.indicator),
                 opt(pt.shift),
                 pt.regime.unwrap_or(""),
+                pt.predicted.unwrap_or(""),
                 opt(pt.headroom),
                 opt(pt.near_equilibrium),
                 opt(pt.near_equilibrium_error()),

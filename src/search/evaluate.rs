@@ -29,6 +29,9 @@ pub struct Evaluation {
     pub p: Vec<f64>,
     /// Total harvesting power (kT per time unit).
     pub power: f64,
+    /// Round-off bound of `power`: `8 n eps` (the componentwise accuracy the steady state
+    /// assumes for GTH) times the sum of the magnitudes of its terms.
+    pub power_roundoff: f64,
     /// `dW / d ln q` in the order of the log-rates given (forward, backward per pathway).
     pub gradient: Option<Vec<f64>>,
 }
@@ -72,12 +75,14 @@ impl Evaluator {
         let p = gth_rates(&mut a, n);
         let mut g = self.work_gradient.clone();
         let mut power: f64 = g.iter().zip(&p).map(|(g, p)| g * p).sum();
+        let mut magnitude: f64 = g.iter().zip(&p).map(|(g, p)| (g * p).abs()).sum();
         let mut flows = Vec::with_capacity(pairs.len());
         for (e, &(from, to)) in pairs.iter().enumerate() {
             let (x_f, x_b) = (log_rates[2 * e], log_rates[2 * e + 1]);
             let v = self.pathway_work(from, to, x_f - x_b);
             let (f, b) = (x_f.exp() * p[from], x_b.exp() * p[to]);
             power += v * (f - b);
+            magnitude += v.abs() * (f + b);
             g[from] += v * x_f.exp();
             g[to] -= v * x_b.exp();
             flows.push((v, f, b));
@@ -93,7 +98,13 @@ impl Evaluator {
                 })
                 .collect()
         });
-        Evaluation { p, power, gradient }
+        let power_roundoff = 8.0 * n as f64 * f64::EPSILON * magnitude;
+        Evaluation {
+            p,
+            power,
+            power_roundoff,
+            gradient,
+        }
     }
 }
 

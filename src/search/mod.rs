@@ -129,8 +129,8 @@ pub struct Found {
     pub verified: Option<(f64, f64)>,
     /// Entropy production of the added pathways at the joint steady state (k_B per time unit).
     pub added_entropy: f64,
-    /// Some pathway carries almost no traffic at the optimum: the design is really one of a
-    /// smaller set, so it is not ranked.
+    /// Some pathway adds a negligible share of the headroom at the optimum
+    /// ([`NEGLIGIBLE_GAIN`]): the design is really one of a smaller set, so it is not ranked.
     pub reducible: bool,
     /// Pairs each pathway acts on: 1, or the number of environment states when it acts the
     /// same in all of them (then `pairs` and `log_rates` list every copy).
@@ -140,8 +140,11 @@ pub struct Found {
 /// Added rates are kept within this many decades below the rate limit.
 pub const RATE_FLOOR_DECADES: f64 = 40.0;
 
-/// Traffic (`f + g`) below this share of the busiest pathway's marks a pathway as idle.
-pub const IDLE_TRAFFIC: f64 = 1e-6;
+/// A pathway whose removal changes a design's power by less than this share of the headroom
+/// (plus the power's round-off) is negligible: every report prints shares of the headroom to at
+/// most four digits, so such a pathway changes nothing a user can see, and the design is ranked
+/// as the smaller set it really is.
+pub const NEGLIGIBLE_GAIN: f64 = 1e-6;
 
 impl Found {
     pub fn pathways(&self, network: &Network) -> Vec<Pathway> {
@@ -481,16 +484,9 @@ impl<'a> Searcher<'a> {
                 }
             })
             .sum();
-        // A pathway the optimum all but switches off makes this set a copy of a smaller one,
-        // which the search scores on its own.
-        let mut traffic = one_way.iter().map(|(f, g)| f + g);
-        let per_candidate: Vec<f64> = layout
-            .members
-            .iter()
-            .map(|m| traffic.by_ref().take(m.len()).sum())
-            .collect();
-        let busiest = per_candidate.iter().copied().fold(0.0, f64::max);
-        let reducible = set.len() > 1 && per_candidate.iter().any(|t| *t < IDLE_TRAFFIC * busiest);
+        // A pathway whose removal leaves the power where it was (or raises it) makes this set a
+        // copy of a smaller one, which the search scores on its own.
+        let reducible = set.len() > 1 && self.has_negligible_pathway(&layout, &log_rates, &eval);
         Some(Found {
             set: set.to_vec(),
             pairs,
@@ -500,6 +496,38 @@ impl<'a> Searcher<'a> {
             added_entropy,
             reducible,
             copies: layout.members[0].len(),
+        })
+    }
+
+    /// Whether some pathway of a design adds less than [`NEGLIGIBLE_GAIN`] of the headroom plus
+    /// round-off: the power of the design without it (other rates unchanged) is compared with
+    /// the design's own.
+    fn has_negligible_pathway(
+        &self,
+        layout: &Layout,
+        log_rates: &[f64],
+        eval: &evaluate::Evaluation,
+    ) -> bool {
+        let pairs = layout.pairs();
+        let tolerance = NEGLIGIBLE_GAIN * self.headroom + eval.power_roundoff;
+        let mut start = 0;
+        layout.members.iter().any(|member| {
+            let range = start..start + member.len();
+            start = range.end;
+            let kept_pairs: Vec<(usize, usize)> = pairs
+                .iter()
+                .enumerate()
+                .filter(|(e, _)| !range.contains(e))
+                .map(|(_, &pair)| pair)
+                .collect();
+            let kept_rates: Vec<f64> = log_rates
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| !range.contains(&(i / 2)))
+                .map(|(_, &x)| x)
+                .collect();
+            let without = self.evaluator.evaluate(&kept_pairs, &kept_rates, false);
+            eval.power - without.power < tolerance + without.power_roundoff
         })
     }
 

@@ -204,3 +204,136 @@ fn closed_forms_are_printed_only_where_their_regime_applies() {
         );
     }
 }
+
+/// One way of scaling a network's labels by a factor (`None` when rates leave the range).
+type Scaling = dyn Fn(&Network, f64) -> Option<Network>;
+
+/// A generated model of one of three kinds, as model-file text (invented numbers):
+/// `mild` (rates within two decades, labels of a few kT), `stiff` (rates over eight decades,
+/// energies and drives up to 8 kT) and `environment` (a 3-state cycle whose drive acts only in
+/// one of two environment states, switching slowly or fast).
+fn generated_model(kind: &str, seed: u64) -> String {
+    let mut rng = ergopath::rng::SplitMix::new(seed);
+    let mut u = |lo: f64, hi: f64| lo + (hi - lo) * rng.uniform();
+    let (n, decades, label) = match kind {
+        "mild" => (4 + (seed % 4) as usize, 1.0, 3.0),
+        "stiff" => (4 + (seed % 4) as usize, 4.0, 8.0),
+        _ => (3, 1.0, 4.0),
+    };
+    let mut text = format!(
+        "title = \"{kind} {seed}\"\ntemperature = 298.15\nenergy_unit = \"kT\"\ntime_unit = \"s\"\n"
+    );
+    for i in 0..n {
+        text += &format!(
+            "[[state]]\nname = \"s{i}\"\nenergy = {}\n",
+            u(-label, label)
+        );
+    }
+    let mut edges: Vec<(usize, usize)> = (0..n).map(|i| (i, (i + 1) % n)).collect();
+    if n > 3 {
+        edges.push((0, n / 2));
+    }
+    if kind == "environment" {
+        let switch = 10f64.powf(u(-2.0, 1.0));
+        text += &format!(
+            "[[environment]]\nname = \"light\"\n[[environment]]\nname = \"dark\"\n[[switch]]\nfrom = \"light\"\nto = \"dark\"\nforward = {switch}\nbackward = {}\n",
+            switch * u(0.5, 2.0)
+        );
+    }
+    for (e, &(a, b)) in edges.iter().enumerate() {
+        let only_light = kind == "environment" && e == 0;
+        text += &format!(
+            "[[transition]]\nfrom = \"s{a}\"\nto = \"s{b}\"\nforward = {}\ndrive = {}\nwork = {}\n{}",
+            10f64.powf(u(-decades, decades)),
+            u(-label, label),
+            u(-label / 2.0, label / 2.0),
+            if only_light { "environments = [\"light\"]\n" } else { "" }
+        );
+    }
+    text
+}
+
+/// The regime verdict on a generated set wider than the sweeps it was tuned on (methods,
+/// section 6): 8 mild, 6 stiff and 6 environment models, each under the three scalings
+/// (stored energy, drives, energies) at 9 scales from 0.01 to 100. Every checked verdict that
+/// names a regime has its form within 10% of the certified headroom (the error is computed here
+/// from the two numbers, not taken from the tool), a crossover is flagged when no form is within
+/// 10%, and the indicators' own predictions are measured: the README quotes these counts.
+#[test]
+fn checked_verdicts_hold_on_a_generated_set() {
+    use closed_form::Regime;
+    let scales = log_scales(0.01, 100.0, 9);
+    let kinds = [("mild", 8), ("stiff", 6), ("environment", 6)];
+    let (mut named, mut predicted, mut confirmed, mut points) = (0, 0, 0, 0);
+    let mut by_kind = std::collections::BTreeMap::new();
+    for (kind, count) in kinds {
+        for seed in 0..count {
+            let model = crate::common::parse(&generated_model(kind, seed));
+            let scalings: [&Scaling; 3] = [
+                &|n, s| Some(n.with_stored_energy_scaled(s)),
+                &|n, s| n.scaled(1.0, s, 1.0),
+                &|n, s| n.scaled(1.0, 1.0, s),
+            ];
+            for scaled in scalings {
+                for (s, exact, forms) in sweep(&model.network, &scales, scaled) {
+                    let forms = forms.checked(exact);
+                    points += 1;
+                    let error = |r: Regime| {
+                        let estimate = match r {
+                            Regime::StrongDrive => forms.strong_drive.as_ref().map(|f| f.headroom),
+                            Regime::NearEquilibrium => {
+                                forms.near_equilibrium.as_ref().map(|f| f.headroom)
+                            }
+                            Regime::Crossover => None,
+                        };
+                        estimate.map(|e| ((e - exact) / exact).abs())
+                    };
+                    if forms.prediction != Regime::Crossover {
+                        predicted += 1;
+                        confirmed += usize::from(error(forms.prediction).is_some_and(|e| e <= 0.1));
+                    }
+                    if forms.regime != Regime::Crossover {
+                        named += 1;
+                        let e = error(forms.regime).unwrap();
+                        assert!(
+                            e <= 0.1,
+                            "{kind} {seed} at {s}: {:?} named, {e} off",
+                            forms.regime
+                        );
+                    }
+                    let any = [Regime::StrongDrive, Regime::NearEquilibrium]
+                        .into_iter()
+                        .any(|r| error(r).is_some_and(|e| e <= 0.1));
+                    assert_eq!(forms.some_form_holds(), any, "{kind} {seed} at {s}");
+                    // Crossover only where no form holds: a form within 10% is always named.
+                    assert_eq!(
+                        forms.regime == Regime::Crossover,
+                        !any,
+                        "{kind} {seed} at {s}"
+                    );
+                    let held = |r: Regime| error(r).is_some_and(|e| e <= 0.1);
+                    if held(forms.prediction) {
+                        assert_eq!(forms.regime, forms.prediction, "{kind} {seed} at {s}");
+                    }
+                    by_kind.entry(kind).or_insert([0usize; 2])[usize::from(any)] += 1;
+                }
+            }
+        }
+    }
+    eprintln!(
+        "generated set: {points} certified points, {predicted} predicted regimes, {confirmed} confirmed within 10%, {named} named; per kind [no form within 10%, some form]: {by_kind:?}"
+    );
+    // Counts measured on this set (quoted in the README); a change of the forms or thresholds
+    // that loses accuracy shows here.
+    assert!(points >= 500, "only {points} points certified");
+    assert!(
+        confirmed * 100 >= 90 * predicted,
+        "only {confirmed} of {predicted} predictions hold"
+    );
+    // Measured: 149 of 529 named (the rest: no closed form within 10%, mostly where drives of a
+    // few kT stay while only the stored energies or the state energies are scaled).
+    assert!(
+        named * 4 >= points,
+        "{named} of {points} named: the verdict says too little"
+    );
+}

@@ -11,6 +11,7 @@ mod errors;
 mod exact_reference;
 mod extremes;
 mod first_use;
+mod fuzzing;
 mod invariants;
 mod published;
 mod reference;

@@ -90,8 +90,14 @@ pub fn solve(network: &Network, settings: &SteadySettings) -> Result<SteadyState
         .iter()
         .position(|p| !(p.is_finite() && *p > 0.0))
     {
+        // GTH is subtraction-free, so a zero there is an underflow (a probability below the
+        // smallest double, about e^-745), not round-off; the sparse path can lose one to both.
+        let cause = match method {
+            Method::DenseGth => "it lies below the smallest double (about e^-745 = 1e-323), since the energies or drives of this network span more than about 745 kT; fix: drop the states that are never visited, or split the model so that each part spans less",
+            Method::SparseLu => "round-off of the sparse solve swamps it, because the rates of this network span many decades; fix: rescale or merge the fastest or slowest channels",
+        };
         return Err(SolveError::Unresolved(format!(
-            "probability of state {bad} came out as {:e} ({}): round-off of the sparse solve swamps it, because the rates of this network span many decades; fix: rescale or merge the fastest or slowest channels",
+            "probability of state {bad} came out as {:e} ({}): {cause}",
             probabilities[bad],
             method.name()
         )));

@@ -254,7 +254,7 @@ impl ClosedForms {
     /// closed form is within [`VERDICT_ACCURACY`] of it, so no report ever names a form that
     /// is far off. The prediction is kept where its form holds; else the form within the
     /// accuracy with the smaller error is named; else the verdict is crossover. (On a generated
-    /// set of 529 points the indicators predicted a regime at 102, and 96 of those held:
+    /// set of 482 points the indicators predicted a regime at 102, and 96 of those held:
     /// `tests/all/regimes.rs`.)
     pub fn checked(mut self, exact_headroom: f64) -> Self {
         self.exact_headroom = Some(exact_headroom);

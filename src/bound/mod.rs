@@ -126,6 +126,11 @@ pub fn routability(objective: &Objective, pairs: &PairSelection) -> Constraints 
     }
 }
 
+/// A bound counts as zero to round-off only while its round-off stays below this share of the
+/// network's one-way traffic `sum r p` (k_B T per time unit of entropy-like terms): the running
+/// error estimates are about `1e-14` of it on networks whose rates span a few decades.
+pub const ZERO_BOUND_TRAFFIC_SHARE: f64 = 1e-6;
+
 /// The refusal of a bound whose relative gap, round-off included, exceeds [`CERTIFIED_GAP`]:
 /// says whether round-off or the optimisation left the gap, and what to try.
 fn uncertified(
@@ -150,8 +155,9 @@ fn uncertified(
             certified.value
         ))
     } else if roundoff >= 0.5 * gap {
+        let relative = relative.max(roundoff / scale.max(f64::MIN_POSITIVE));
         SolveError::NotDetermined(format!(
-            "the best value found, {:.6e}, carries a round-off of +- {roundoff:.1e} (relative gap {relative:.1e}, more than {CERTIFIED_GAP:.0e}) because the network's rates span {slowest:.1e} to {fastest:.1e} per time unit; fix: merge states that are in fast equilibrium with a neighbour, remove channels far slower than the rest, or restrict the added pathways with --pairs",
+            "the best value found, {:.6e}, carries a round-off of +- {roundoff:.1e} (relative {relative:.1e}, more than {CERTIFIED_GAP:.0e}) because the network's rates span {slowest:.1e} to {fastest:.1e} per time unit; fix: merge states that are in fast equilibrium with a neighbour, remove channels far slower than the rest, or restrict the added pathways with --pairs",
             certified.value
         ))
     } else {
@@ -241,9 +247,18 @@ pub fn solve(
     let gap = certified.upper - certified.value;
     // A bound that is zero to round-off (no work labels, or none the optimum can use) is a true
     // statement, `Phi* <= certified_upper`, and is reported as not determined; any other bound
-    // must meet the relative gap, whatever its round-off.
-    let zero_to_roundoff = roundoff.is_finite() && scale <= roundoff && gap <= roundoff;
-    if !certified_upper.is_finite() || (gap > CERTIFIED_GAP * scale && !zero_to_roundoff) {
+    // must meet the relative gap, whatever its round-off. "Zero" is judged against the
+    // network's own traffic: a round-off far above it (a 4-state ring with energy steps of
+    // 480 kT has rates of 1e208 and a round-off of 6e202 kT/s beside a bound of 0.2) is not
+    // a zero bound but one that double precision cannot determine.
+    let traffic: f64 = objective.jumps.iter().map(|j| j.rate * p[j.source]).sum();
+    let zero_to_roundoff = roundoff.is_finite()
+        && scale <= roundoff
+        && gap <= roundoff
+        && roundoff <= ZERO_BOUND_TRAFFIC_SHARE * traffic;
+    let swamped = scale <= roundoff && !zero_to_roundoff;
+    if !certified_upper.is_finite() || swamped || (gap > CERTIFIED_GAP * scale && !zero_to_roundoff)
+    {
         return Err(uncertified(network, &certified, gap, roundoff, scale));
     }
     // The baseline network is itself a design (no pathway added), so a sound certificate can

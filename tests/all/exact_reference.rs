@@ -248,12 +248,15 @@ fn the_certified_bound_never_falls_below_the_exact_baseline_power() {
             Err(_) => refused += 1,
         }
     }
-    // Measured: 230 of 250 certified; each refusal says that round-off decides the bound
-    // (implied rates spanning up to 1e-150..1e140 on these models). The floor catches a solver
-    // that stops certifying, the assertions above a certificate that lies.
+    // Measured: 98 of 250 certified; each refusal says that round-off decides the bound
+    // (implied rates spanning up to 1e-150..1e150 on these models: the round-off of the
+    // certificate exceeds the bound itself, e.g. 1.8 +- 1.2e20 at rates from 1e-55 to 5e32).
+    // Until 2026-12-03 such bounds were returned as "zero to round-off" (130 of the 250) and
+    // printed as not determined, while shares of their headroom were still printed. The floor
+    // catches a solver that stops certifying, the assertions above a certificate that lies.
     eprintln!("{certified} certified, {refused} refused");
     assert!(
-        certified >= 200,
+        certified >= 90,
         "{refused} of {} refused",
         certified + refused
     );

@@ -321,10 +321,11 @@ fn bound_json_has_the_documented_keys_and_lawful_pathways() {
         0.0
     ));
     assert!(f(&bound["certified_upper"]) >= f(&bound["power"]));
-    // The quadratic estimate is within a few percent here (walker: 1.9%).
+    // The quadratic estimate: measured 1.9% off on the walker; 2.5% allows for a change of
+    // the last digits of either number, not for a different estimate.
     let estimate = f(&v["closed_forms"]["near_equilibrium"]["headroom"]);
     assert!(
-        close(estimate, f(&bound["headroom"]), 0.05, 0.0),
+        close(estimate, f(&bound["headroom"]), 0.025, 0.0),
         "estimate {estimate}"
     );
     let total: f64 = v["optimal_distribution"]

@@ -198,7 +198,12 @@ fn environment_errors_name_the_place_and_the_fix() {
             "{err}"
         );
     }
-    // --blind on a model without an environment is refused.
+    // --blind on a model without an environment is refused, saying why and what to do.
     let out = run(&["design", "problems/walker.toml", "--blind"]);
     assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("this model has no [[environment]]") && err.contains("drop --blind"),
+        "{err}"
+    );
 }

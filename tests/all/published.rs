@@ -192,6 +192,45 @@ fn unit_conversions_match_exact_si_values() {
     assert!(close(ev.kt_per_unit(), 38.92, 1e-4, 0.0));
     let kcal = at(EnergyUnit::KiloCaloriePerMole);
     assert!(close(1.0 / kcal.kt_per_unit(), 0.59248, 1e-5, 0.0));
+    // Every unit against its definition, computed here from the exact 2019 SI values typed
+    // below (not the crate's constants), to 1e-15: k_B = 1.380649e-23 J/K, N_A =
+    // 6.02214076e23 /mol, e = 1.602176634e-19 C, 1 cal = 4.184 J (thermochemical), 1 zJ =
+    // 1 pN nm = 1e-21 J. The 4-6 digit values above are the handbook figures.
+    for temperature in [273.15, 298.15, 310.0] {
+        let kt = 1.380649e-23 * temperature;
+        for (unit, joules) in [
+            (EnergyUnit::KT, kt),
+            (EnergyUnit::KiloJoulePerMole, 1e3 / 6.02214076e23),
+            (EnergyUnit::KiloCaloriePerMole, 4.184e3 / 6.02214076e23),
+            (EnergyUnit::ElectronVolt, 1.602176634e-19),
+            (EnergyUnit::ZeptoJoule, 1e-21),
+            (EnergyUnit::PiconewtonNanometre, 1e-21),
+        ] {
+            let units = Units {
+                temperature,
+                energy: unit,
+                time: TimeUnit::Second,
+            };
+            let per_unit = joules / kt;
+            assert!(
+                close(units.kt_per_unit(), per_unit, 1e-15, 0.0),
+                "{unit:?} at {temperature} K: {} vs {per_unit}",
+                units.kt_per_unit()
+            );
+            // A wrong factor anywhere in the pair shows here, unlike a bare round trip.
+            assert!(close(units.to_kt(2.5), 2.5 * per_unit, 1e-15, 0.0));
+            assert!(close(units.from_kt(2.5 * per_unit), 2.5, 1e-15, 0.0));
+        }
+    }
+    for (unit, seconds) in [
+        (TimeUnit::Second, 1.0),
+        (TimeUnit::Millisecond, 1e-3),
+        (TimeUnit::Microsecond, 1e-6),
+        (TimeUnit::Nanosecond, 1e-9),
+        (TimeUnit::Minute, 60.0),
+    ] {
+        assert_eq!(unit.seconds(), seconds);
+    }
     assert!(close(
         photon_energy_joules(500.0) / ELEMENTARY_CHARGE,
         1239.84198 / 500.0,

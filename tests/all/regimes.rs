@@ -168,12 +168,25 @@ fn regimes_command_tabulates_the_sweep() {
         ((exact - formula) / formula).abs() < 1e-3,
         "{exact} vs {formula}"
     );
-    for bad in [
-        &["--scale", "speed"][..],
-        &["--scale", "work", "--from", "0"][..],
+    for (bad, expected) in [
+        (
+            &["--scale", "speed"][..],
+            [
+                "'speed' is not a label to scale",
+                "give work, drive, energies",
+            ],
+        ),
+        (
+            &["--scale", "work", "--from", "0"][..],
+            ["--from 0e0", "give 2.2e-308 <= FROM < TO"],
+        ),
     ] {
         let out = run(&[&["regimes", "problems/ring6.toml"][..], bad].concat());
         assert_eq!(out.status.code(), Some(2));
+        let err = String::from_utf8_lossy(&out.stderr);
+        for part in expected {
+            assert!(err.contains(part), "{bad:?}: {err}");
+        }
     }
 }
 

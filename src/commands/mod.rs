@@ -6,7 +6,7 @@
 use crate::model::{Model, ModelError, PairSelection};
 use crate::report::output::{to_json, OutputError};
 use crate::report::{check::check_text, steady::SteadyReport};
-use crate::steady::{self, SolveError, SteadySettings};
+use crate::steady::{SolveError, SteadySettings};
 use std::path::Path;
 
 pub mod files;
@@ -206,9 +206,9 @@ fn emit_in(
 /// `ergopath steady`: stationary distribution and power budget.
 pub fn steady(path: &Path, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
     let model = Model::load(path)?;
-    let state = steady::solve(&model.network, &SteadySettings::default())?;
-    let obs = steady::observe(&model.network, &state.probabilities);
-    let report = SteadyReport::new(&model, &state, &obs);
+    let (state, obs, precision) =
+        crate::fluctuation::of_network(&model.network, &SteadySettings::default())?;
+    let report = SteadyReport::new(&model, &state, &obs, &precision);
     let rendered = Rendered {
         text: report.text(&model),
         json: to_json(&report)?,
@@ -367,6 +367,12 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
     );
     report.rate_capped_failure = capped_failure
         .map(|(rate_cap, reason)| crate::report::bound::CappedFailure { rate_cap, reason });
+    attach_precision(
+        &model,
+        &mut report,
+        attaining.design.as_ref(),
+        capped.as_ref(),
+    )?;
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
@@ -380,6 +386,46 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         request.save_root.as_deref(),
         rendered,
     )
+}
+
+/// The fluctuations of the work current of the baseline and of every design a bound report
+/// shows, each from its own steady state (methods, section 12).
+fn attach_precision(
+    model: &Model,
+    report: &mut crate::report::bound::BoundReport,
+    design: Option<&crate::bound::design::VerifiedDesign>,
+    capped: Option<&(f64, crate::bound::design::VerifiedDesign)>,
+) -> Result<(), Error> {
+    use crate::report::precision::PrecisionJson;
+    let u = &model.units;
+    let baseline = design_precision(&model.network, &[])?;
+    report.precision = Some(PrecisionJson::of(&baseline, u));
+    if let (Some(json), Some(d)) = (report.design.as_mut(), design) {
+        json.precision = Some(PrecisionJson::of(
+            &design_precision(&model.network, &d.pathways)?,
+            u,
+        ));
+    }
+    if let (Some(json), Some((_, d))) = (report.rate_capped.as_mut(), capped) {
+        json.design.precision = Some(PrecisionJson::of(
+            &design_precision(&model.network, &d.pathways)?,
+            u,
+        ));
+    }
+    Ok(())
+}
+
+/// Fluctuations of the work current of `network` with `pathways` added.
+pub(crate) fn design_precision(
+    network: &crate::model::Network,
+    pathways: &[crate::bound::design::Pathway],
+) -> Result<crate::fluctuation::Precision, Error> {
+    let extra: Vec<crate::model::Channel> = pathways
+        .iter()
+        .map(crate::bound::design::Pathway::channel)
+        .collect();
+    let joint = network.with_channels(&extra);
+    Ok(crate::fluctuation::of_network(&joint, &SteadySettings::default())?.2)
 }
 
 /// Settings of `ergopath regimes`.

@@ -11,6 +11,7 @@ mod exact_reference;
 mod extremes;
 mod first_use;
 mod invariants;
+mod precision;
 mod published;
 mod reference;
 mod regimes;

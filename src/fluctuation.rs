@@ -305,6 +305,11 @@ impl JumpTable {
         table
     }
 
+    /// Total exit rate of every state.
+    pub fn exit_rates(&self) -> &[f64] {
+        &self.exit
+    }
+
     /// The state a walker in `s` jumps to, and the work it stores, for a uniform `u` in [0, 1).
     #[inline]
     fn jump(&self, s: usize, u: f64) -> (usize, f64) {
@@ -325,14 +330,19 @@ pub fn run_seed(seed: u64, index: usize) -> u64 {
     mixer.next_u64()
 }
 
+/// Jumps between two looks at the stop flag.
+const STOP_CHECK: u64 = 1 << 14;
+
 /// One run of Gillespie's direct method (Gillespie, J. Phys. Chem. 81, 2340 (1977)) from a
-/// state drawn from the steady distribution `p` (cumulative `stationary`), over `settings.time`.
+/// state drawn from the steady distribution `p` (cumulative `stationary`), over `settings.time`;
+/// `None` if `stop` was raised meanwhile (Ctrl-C).
 pub fn simulate_run(
     table: &JumpTable,
     stationary: &[f64],
     settings: &SimulationSettings,
     index: usize,
-) -> Run {
+    stop: &std::sync::atomic::AtomicBool,
+) -> Option<Run> {
     let mut rng = SplitMix::new(run_seed(settings.seed, index));
     let u = rng.uniform();
     let mut s = stationary
@@ -365,15 +375,18 @@ pub fn simulate_run(
         work += w;
         jumps += 1;
         t = next;
+        if jumps % STOP_CHECK == 0 && stop.load(std::sync::atomic::Ordering::Relaxed) {
+            return None;
+        }
     }
     if record {
         trajectory.resize(settings.grid_points, work);
     }
-    Run {
+    Some(Run {
         work,
         jumps,
         trajectory,
-    }
+    })
 }
 
 /// An estimate with the half-width of its confidence interval.

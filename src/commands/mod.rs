@@ -10,7 +10,9 @@ use crate::steady::{SolveError, SteadySettings};
 use std::path::Path;
 
 pub mod files;
+mod precision;
 mod search;
+pub use precision::{simulate, SimulateRequest};
 pub use search::{
     compare, design, merge, sweep, BudgetFlags, CompareRequest, DesignRequest, SearchKnobs,
     SweepRequest,
@@ -398,6 +400,7 @@ fn attach_precision(
 ) -> Result<(), Error> {
     use crate::report::precision::PrecisionJson;
     let u = &model.units;
+    use precision::design_precision;
     let baseline = design_precision(&model.network, &[])?;
     report.precision = Some(PrecisionJson::of(&baseline, u));
     if let (Some(json), Some(d)) = (report.design.as_mut(), design) {
@@ -413,19 +416,6 @@ fn attach_precision(
         ));
     }
     Ok(())
-}
-
-/// Fluctuations of the work current of `network` with `pathways` added.
-pub(crate) fn design_precision(
-    network: &crate::model::Network,
-    pathways: &[crate::bound::design::Pathway],
-) -> Result<crate::fluctuation::Precision, Error> {
-    let extra: Vec<crate::model::Channel> = pathways
-        .iter()
-        .map(crate::bound::design::Pathway::channel)
-        .collect();
-    let joint = network.with_channels(&extra);
-    Ok(crate::fluctuation::of_network(&joint, &SteadySettings::default())?.2)
 }
 
 /// Settings of `ergopath regimes`.

@@ -231,7 +231,7 @@ impl SimulateReport {
         );
         let row = |name: &str, unit: &str, f: &SimulatedFigure, roundoff: f64| {
             format!(
-                "  {name:<16} {:>12}  [{}, {}]  exact {} {unit}{}\n",
+                "  {name:<16} {:>12}  [{}, {}]  {} {unit}{}\n",
                 num(f.estimate),
                 num(f.low),
                 num(f.high),

@@ -2,7 +2,7 @@
 //! (methods, section 13): exact references, the uncertainty relation, simulated confidence
 //! intervals, and the messages for bad `simulate` input.
 
-use crate::common::{load, network_strategy, root, run_json};
+use crate::common::{load, network_strategy, root, run, run_json};
 use ergopath::fluctuation::{self, Figure, Precision, Randomness, Ratio};
 use ergopath::model::{Channel, Network};
 use ergopath::rng::SplitMix;
@@ -265,4 +265,291 @@ fn uncertainty_product_tends_to_two_near_equilibrium() {
         assert!((0.005..0.02).contains(&ratio), "{excess:?}");
     }
     assert!(excess[2] < 1e-5, "{excess:?}");
+}
+
+/// `simulate --json` on `model` with the given extra arguments.
+fn simulate(model: &str, extra: &[&str]) -> Value {
+    let mut args = vec!["simulate", model, "--json", "--quiet"];
+    args.extend_from_slice(extra);
+    run_json(&args)
+}
+
+#[test]
+fn simulation_agrees_with_the_exact_figures_within_its_intervals() {
+    // Source: Gillespie's direct method (D. T. Gillespie, J. Phys. Chem. 81, 2340 (1977)) is an
+    // exact sampler of the jump process, so its estimates must cover the exact J and D (99%
+    // intervals, methods, section 13; fixed seeds, so the outcome is deterministic). Runs are
+    // thousands of the slowest exit times long, so the 1/T bias of the diffusion is negligible.
+    let cases = [
+        ("problems/walker.toml", "50"),
+        ("problems/flicker.toml", "500"),
+        ("tests/fixtures/models/random1.toml", "4000"),
+        ("tests/fixtures/models/random2.toml", "2000"),
+        ("tests/fixtures/models/random5.toml", "2000"),
+        ("tests/fixtures/models/random6.toml", "2000"),
+        ("tests/fixtures/precision/twostate2.toml", "500"),
+    ];
+    for (model, time) in cases {
+        let out = simulate(model, &["--time", time, "--runs", "400", "--seed", "11"]);
+        for figure in ["power", "diffusion"] {
+            let f = &out[figure];
+            let (low, high, exact) = (
+                f["low"].as_f64().unwrap(),
+                f["high"].as_f64().unwrap(),
+                f["exact"].as_f64().unwrap(),
+            );
+            assert!(
+                low <= exact && exact <= high && f["inside"] == Value::Bool(true),
+                "{model} {figure}: exact {exact} outside [{low}, {high}]"
+            );
+            // The interval is informative: narrower than the figure's own size (D always,
+            // J where the power is not tiny against its fluctuations).
+            if figure == "diffusion" {
+                assert!(high - low < exact, "{model}: [{low}, {high}] for {exact}");
+            }
+        }
+    }
+}
+
+#[test]
+fn simulation_does_not_depend_on_the_number_of_threads() {
+    // Methods, section 13: every run draws from its own stream derived from (seed, index).
+    let args = [
+        "simulate",
+        "problems/walker.toml",
+        "--time",
+        "5",
+        "--runs",
+        "50",
+        "--seed",
+        "3",
+        "--json",
+        "--quiet",
+    ];
+    let one = std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
+        .args(args)
+        .env("RAYON_NUM_THREADS", "1")
+        .current_dir(root())
+        .output()
+        .unwrap();
+    let two = std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
+        .args(args)
+        .env("RAYON_NUM_THREADS", "2")
+        .current_dir(root())
+        .output()
+        .unwrap();
+    assert!(one.status.success() && two.status.success());
+    assert_eq!(one.stdout, two.stdout);
+    let other = simulate(
+        "problems/walker.toml",
+        &["--time", "5", "--runs", "50", "--seed", "4"],
+    );
+    let first: Value = serde_json::from_slice(&one.stdout).unwrap();
+    assert_ne!(first["power"]["estimate"], other["power"]["estimate"]);
+}
+
+#[test]
+fn a_saved_design_is_simulated_with_its_pathways() {
+    // The design's exact figures in `simulate` are those `design` reported for it.
+    let dir = crate::common::scratch("simulate-design");
+    let design = run_json(&[
+        "design",
+        "problems/walker.toml",
+        "--max-pathways",
+        "1",
+        "--rate-cap",
+        "1000",
+        "--json",
+        "--quiet",
+    ]);
+    let file = dir.join("design.json");
+    std::fs::write(&file, design.to_string()).unwrap();
+    let out = simulate(
+        "problems/walker.toml",
+        &[
+            "--design",
+            file.to_str().unwrap(),
+            "--time",
+            "50",
+            "--runs",
+            "300",
+            "--seed",
+            "5",
+        ],
+    );
+    let best = &design["designs"][0];
+    let (power, diffusion) = (
+        best["achieved_power"].as_f64().unwrap(),
+        best["precision"]["diffusion"].as_f64().unwrap(),
+    );
+    assert!((out["power"]["exact"].as_f64().unwrap() - power).abs() < 1e-9 * power);
+    assert!((out["diffusion"]["exact"].as_f64().unwrap() - diffusion).abs() < 1e-9 * diffusion);
+    assert_eq!(out["diffusion"]["inside"], Value::Bool(true));
+    assert_eq!(out["power"]["inside"], Value::Bool(true));
+}
+
+#[test]
+fn max_fano_keeps_only_regular_enough_designs() {
+    let args = |limit: &'static str| {
+        let mut a = vec![
+            "design",
+            "problems/walker.toml",
+            "--max-pathways",
+            "1",
+            "--rate-cap",
+            "1000",
+            "--json",
+            "--quiet",
+        ];
+        if !limit.is_empty() {
+            a.extend_from_slice(&["--max-fano", limit]);
+        }
+        a
+    };
+    let all = run_json(&args(""));
+    let fanos: Vec<f64> = all["designs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|d| d["precision"]["fano_factor"].as_f64().unwrap())
+        .collect();
+    let mut sorted = fanos.clone();
+    sorted.sort_by(f64::total_cmp);
+    let limit = 0.5 * (sorted[sorted.len() / 2 - 1] + sorted[sorted.len() / 2]);
+    let text: &'static str = Box::leak(format!("{limit}").into_boxed_str());
+    let kept = run_json(&args(text));
+    let kept_fanos: Vec<f64> = kept["designs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|d| d["precision"]["fano_factor"].as_f64().unwrap())
+        .collect();
+    assert!(kept_fanos.iter().all(|&f| f <= limit));
+    assert_eq!(
+        kept_fanos.len() + kept["left_out_by_fano"].as_u64().unwrap() as usize,
+        fanos.len()
+    );
+    assert!(!kept_fanos.is_empty() && kept_fanos.len() < fanos.len());
+}
+
+/// Runs `args`, expects exit status 2 and returns standard error.
+fn refused(args: &[&str]) -> String {
+    let out = run(args);
+    let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
+    assert_eq!(out.status.code(), Some(2), "{args:?}: {stderr}");
+    assert!(out.stdout.is_empty(), "{args:?}");
+    stderr
+}
+
+#[test]
+fn bad_design_files_are_refused_with_file_place_and_fix() {
+    let dir = crate::common::scratch("simulate-bad-design");
+    let good = run_json(&["bound", "problems/walker.toml", "--json"]);
+    let write = |name: &str, text: String| {
+        let path = dir.join(name);
+        std::fs::write(&path, text).unwrap();
+        path.to_string_lossy().into_owned()
+    };
+    let edited = |edit: &dyn Fn(&mut Value)| {
+        let mut v = good.clone();
+        edit(&mut v);
+        v.to_string()
+    };
+    let cases: Vec<(String, Vec<&str>)> = vec![
+        (
+            write("broken.json", "{\"units\": ".into()),
+            vec!["line 1, column", "not JSON", "fix:"],
+        ),
+        (
+            write(
+                "state.json",
+                edited(&|v| v["design"]["pathways"][0]["from"] = Value::from("nowhere")),
+            ),
+            vec!["design.pathways[0].from", "no state 'nowhere'", "fix:"],
+        ),
+        (
+            write(
+                "work.json",
+                edited(&|v| v["design"]["pathways"][1]["work"] = Value::from(3.0)),
+            ),
+            vec!["design.pathways[1].work", "local detailed balance", "fix:"],
+        ),
+        (
+            write(
+                "rate.json",
+                edited(&|v| v["design"]["pathways"][0]["forward"] = Value::from(-1.0)),
+            ),
+            vec!["design.pathways[0].forward", "positive normal rate", "fix:"],
+        ),
+        (
+            write(
+                "unit.json",
+                edited(&|v| v["units"]["energy"] = Value::from("kT")),
+            ),
+            vec!["units.energy", "'kT'", "fix:"],
+        ),
+        (
+            write("other.json", "{\"units\": {\"energy\": \"pN nm\"}}".into()),
+            vec!["top level", "neither", "fix:"],
+        ),
+        (
+            dir.to_string_lossy().into_owned(),
+            vec!["cannot read the design file", "fix:"],
+        ),
+    ];
+    for (file, phrases) in &cases {
+        let stderr = refused(&[
+            "simulate",
+            "problems/walker.toml",
+            "--design",
+            file,
+            "--time",
+            "1",
+            "--runs",
+            "10",
+        ]);
+        assert!(stderr.contains(file.as_str()), "{stderr}");
+        for phrase in phrases {
+            assert!(
+                stderr.contains(phrase),
+                "{file}: '{phrase}' not in: {stderr}"
+            );
+        }
+    }
+    // The unedited file is accepted.
+    let fine = write("fine.json", good.to_string());
+    simulate(
+        "problems/walker.toml",
+        &["--design", &fine, "--time", "1", "--runs", "10"],
+    );
+}
+
+#[test]
+fn bad_simulation_flags_are_refused_with_a_fix() {
+    for (flags, phrase) in [
+        (["--time", "0", "--runs", "10"], "--time 0"),
+        (["--time", "nan", "--runs", "10"], "--time NaN"),
+        (["--time", "1", "--runs", "1"], "--runs 1"),
+        (["--time", "1e12", "--runs", "1000"], "jumps"),
+    ] {
+        let mut args = vec!["simulate", "problems/walker.toml"];
+        args.extend_from_slice(&flags);
+        let stderr = refused(&args);
+        assert!(
+            stderr.contains(phrase) && stderr.contains("give"),
+            "{stderr}"
+        );
+    }
+    let stderr = refused(&[
+        "design",
+        "problems/walker.toml",
+        "--max-pathways",
+        "1",
+        "--max-fano",
+        "0",
+    ]);
+    assert!(
+        stderr.contains("--max-fano 0") && stderr.contains("give a positive"),
+        "{stderr}"
+    );
 }

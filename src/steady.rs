@@ -111,10 +111,15 @@ impl Factors {
                         b[j] += b[k] * a[k * n + j] / s;
                     }
                 }
-                let mut y = vec![0.0; n];
+                // Back substitution by rows (each solved `y_k` pushed into the states above
+                // it), so that the factors are read contiguously.
+                let (mut y, mut inflow) = (vec![0.0; n], vec![0.0; n]);
                 for k in 1..n {
-                    let inflow: f64 = (0..k).map(|i| y[i] * a[i * n + k]).sum();
-                    y[k] = (inflow - b[k]) / exit[k];
+                    y[k] = (inflow[k] - b[k]) / exit[k];
+                    let row = &a[k * n..(k + 1) * n];
+                    for j in k + 1..n {
+                        inflow[j] += y[k] * row[j];
+                    }
                 }
                 y
             }

@@ -7,7 +7,7 @@ use ergopath::fluctuation::{self, Figure, Precision, Randomness, Ratio};
 use ergopath::model::{Channel, Network};
 use ergopath::rng::SplitMix;
 use ergopath::steady::SteadySettings;
-use proptest::prelude::*;
+use proptest::prop_assert;
 use serde_json::Value;
 
 fn precision(net: &Network, dense_limit: usize) -> Precision {
@@ -219,22 +219,43 @@ fn determined(r: Ratio) -> Option<Figure> {
     r.figure().filter(|f| f.roundoff <= 1e-6 * f.value.abs())
 }
 
-proptest! {
-    #![proptest_config(ProptestConfig { cases: 3000, rng_seed: crate::common::PROPTEST_SEED, ..ProptestConfig::default() })]
-
-    /// The thermodynamic uncertainty relation, Barato and Seifert, Phys. Rev. Lett. 114, 158101
-    /// (2015): Q = 2 D sigma / J^2 >= 2 for any current of a Markov jump process in steady
-    /// state; here for the work current of random networks, on both solver paths.
-    #[test]
-    fn uncertainty_product_is_at_least_two(net in network_strategy(8)) {
-        for limit in [400, 0] {
-            let pr = precision(&net, limit);
-            prop_assert!(pr.diffusion.value >= -pr.diffusion.roundoff, "{pr:?}");
-            if let Some(q) = determined(pr.uncertainty_product) {
-                prop_assert!(q.value >= 2.0 - q.roundoff, "Q = {q:?}");
+/// The thermodynamic uncertainty relation, Barato and Seifert, Phys. Rev. Lett. 114, 158101
+/// (2015): Q = 2 D sigma / J^2 >= 2 for any current of a Markov jump process in steady state;
+/// here for the work current of 3000 random networks (proptest, seeded), on both solver paths.
+/// Solves whose Q is not determined to 1e-6 (mostly networks whose work labels cancel around
+/// every cycle, so J = 0) are skipped; at least 4000 of the 6000 must be checked (measured:
+/// 5010).
+#[test]
+fn uncertainty_product_is_at_least_two() {
+    use proptest::test_runner::{Config, TestRunner};
+    let mut runner = TestRunner::new(Config {
+        cases: 3000,
+        rng_seed: crate::common::PROPTEST_SEED,
+        ..Config::default()
+    });
+    let checked = std::cell::Cell::new(0usize);
+    runner
+        .run(&network_strategy(8), |net| {
+            for limit in [400, 0] {
+                let pr = precision(&net, limit);
+                prop_assert!(pr.diffusion.value >= -pr.diffusion.roundoff, "{pr:?}");
+                if let Some(q) = determined(pr.uncertainty_product) {
+                    checked.set(checked.get() + 1);
+                    prop_assert!(q.value >= 2.0 - q.roundoff, "Q = {q:?}");
+                }
             }
-        }
-    }
+            Ok(())
+        })
+        .unwrap();
+    eprintln!(
+        "uncertainty relation: {} of 6000 solves had a determined Q",
+        checked.get()
+    );
+    assert!(
+        checked.get() >= 4000,
+        "only {} of 6000 checked",
+        checked.get()
+    );
 }
 
 #[test]
@@ -552,4 +573,52 @@ fn bad_simulation_flags_are_refused_with_a_fix() {
         stderr.contains("--max-fano 0") && stderr.contains("give a positive"),
         "{stderr}"
     );
+}
+
+#[test]
+fn sweep_charts_power_against_the_fano_factor() {
+    let dir = crate::common::scratch("sweep-frontier");
+    let model = dir.join("walker.toml");
+    std::fs::copy(root().join("problems/walker.toml"), &model).unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
+        .args([
+            "sweep",
+            "walker.toml",
+            "--over",
+            "rate-cap=10..1e4",
+            "--points",
+            "4",
+            "--max-pathways",
+            "1",
+            "--quiet",
+            "--save",
+        ])
+        .current_dir(&dir)
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(stdout.contains("Power against precision"), "{stdout}");
+    let folder = dir.join("results/walker");
+    let svg = std::fs::read_to_string(folder.join("frontier-rate-cap.svg")).unwrap();
+    assert!(svg.contains("Fano factor"));
+    let json: Value = serde_json::from_str(
+        &std::fs::read_to_string(folder.join("frontier-rate-cap.json")).unwrap(),
+    )
+    .unwrap();
+    // Each point's best design carries its precision, the same as `design` would give it.
+    let points = json["points"].as_array().unwrap();
+    assert_eq!(points.len(), 4);
+    for p in points {
+        let fano = p["precision"]["fano_factor"].as_f64().unwrap();
+        let power = p["best_power"].as_f64().unwrap();
+        let d = p["precision"]["diffusion"].as_f64().unwrap();
+        assert!((fano - 2.0 * d / power).abs() < 1e-9 * fano, "{p}");
+    }
+    let manifest = std::fs::read_to_string(folder.join("manifest.json")).unwrap();
+    assert!(manifest.contains("frontier-rate-cap"));
 }

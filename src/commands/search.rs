@@ -526,6 +526,9 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     let settings = request
         .knobs
         .settings(resolve_budget(&model, &request.budget)?)?;
+    if request.max_fano.is_some() && request.shard.is_some() {
+        return Err(Error::Usage("--max-fano and --shard do not combine: a shard writes all its designs to its part file; give --max-fano to a run without --shard".into()));
+    }
     if request.checkpoint.is_some() && request.shard.is_some() {
         return Err(Error::Usage("--checkpoint and --shard do not combine: shards are already resumable (rerun the missing ones)".into()));
     }

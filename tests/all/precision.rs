@@ -573,6 +573,17 @@ fn bad_simulation_flags_are_refused_with_a_fix() {
         stderr.contains("--max-fano 0") && stderr.contains("give a positive"),
         "{stderr}"
     );
+    let stderr = refused(&[
+        "design",
+        "problems/walker.toml",
+        "--max-pathways",
+        "1",
+        "--max-fano",
+        "20",
+        "--shard",
+        "0/2",
+    ]);
+    assert!(stderr.contains("--max-fano and --shard"), "{stderr}");
 }
 
 #[test]

@@ -91,6 +91,11 @@ pub struct SteadyTiming {
     pub peak_mb: Option<f64>,
     pub method: &'static str,
     pub relative_residual: f64,
+    /// Median time of what `steady` computes without fluctuations: solve and observables.
+    pub observed_seconds: f64,
+    /// The same with the fluctuations of the work current (methods, section 12): the solve
+    /// keeps its factorisation and adds one solve and one refinement solve.
+    pub precision_seconds: f64,
 }
 
 /// Largest random-chord network timed: beyond it the direct sparse LU fills in (measured: 2.6 s
@@ -123,13 +128,25 @@ pub fn time_steady(
         let (seconds, result) =
             median_seconds(runs, || steady::solve(&net, &SteadySettings::default()));
         let state = result?;
+        let peak = peak_mb();
+        let (observed_seconds, observed) = median_seconds(runs, || {
+            steady::solve(&net, &SteadySettings::default())
+                .map(|s| steady::observe(&net, &s.probabilities).power)
+        });
+        observed?;
+        let (precision_seconds, precision) = median_seconds(runs, || {
+            crate::fluctuation::of_network(&net, &SteadySettings::default())
+        });
+        precision?;
         rows.push(SteadyTiming {
             family,
             states: n,
             seconds,
-            peak_mb: peak_mb(),
+            peak_mb: peak,
             method: state.method.name(),
             relative_residual: state.relative_residual,
+            observed_seconds,
+            precision_seconds,
         });
     }
     Ok(rows)

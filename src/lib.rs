@@ -7,6 +7,7 @@
 pub mod bench;
 pub mod bound;
 pub mod commands;
+pub mod fluctuation;
 pub mod fuzzing;
 pub mod linalg;
 pub mod model;

@@ -103,10 +103,42 @@ enum Command {
         /// Testing aid: stop as if interrupted after N new branches
         #[arg(long, hide = true)]
         stop_after_branches: Option<usize>,
+        /// Rank only designs whose Fano factor |2D/J| (energy unit) is at most X: a regular enough work current
+        #[arg(long, value_name = "X")]
+        max_fano: Option<f64>,
         #[command(flatten)]
         format: FormatFlags,
         #[command(flatten)]
         save: SaveFlag,
+    },
+    /// Simulate the machine (Gillespie) and compare the simulated mean power and diffusion with the exact ones
+    #[command(
+        after_help = "Examples:\n  ergopath simulate problems/walker.toml --time 100 --runs 2000 --seed 1\n  ergopath simulate problems/walker.toml --design results/walker/design.json --time 100 --runs 2000 --seed 1 --save"
+    )]
+    Simulate {
+        /// Model file (TOML)
+        model: PathBuf,
+        /// Add the pathways of a saved design: design.json (its rank-1 design) or bound.json (its attaining design)
+        #[arg(long, value_name = "FILE")]
+        design: Option<PathBuf>,
+        /// Length of each run, in the model's time unit
+        #[arg(long, value_name = "T")]
+        time: f64,
+        /// Number of independent runs
+        #[arg(long, value_name = "N", default_value_t = 1000)]
+        runs: usize,
+        /// Seed of the runs' random streams (same seed, same result on any number of threads)
+        #[arg(long, value_name = "S", default_value_t = 1)]
+        seed: u64,
+        /// No progress bar
+        #[arg(long)]
+        quiet: bool,
+        /// Print one JSON object (every key is listed in docs/model-format.md)
+        #[arg(long)]
+        json: bool,
+        /// Also write the report and a chart of the accumulated work of the first runs to results/<model name>/
+        #[arg(long)]
+        save: bool,
     },
     /// Combine the part files of a sharded design search into the ranking one run would give
     #[command(
@@ -456,6 +488,7 @@ fn main() -> ExitCode {
             checkpoint,
             resume,
             stop_after_branches,
+            max_fano,
             format,
             save,
         } => commands::design(
@@ -468,8 +501,30 @@ fn main() -> ExitCode {
                 checkpoint: checkpoint.clone(),
                 resume: *resume,
                 stop_after: *stop_after_branches,
+                max_fano: *max_fano,
                 format: format.format(),
                 save_root: save.root(),
+            },
+        ),
+        Command::Simulate {
+            model,
+            design,
+            time,
+            runs,
+            seed,
+            quiet,
+            json,
+            save,
+        } => commands::simulate(
+            model,
+            &commands::SimulateRequest {
+                design: design.clone(),
+                time: *time,
+                runs: *runs,
+                seed: *seed,
+                quiet: *quiet,
+                format: if *json { Format::Json } else { Format::Text },
+                save_root: save.then(|| PathBuf::from("results")),
             },
         ),
         Command::Merge {

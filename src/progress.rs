@@ -1,4 +1,4 @@
-//! The terminal progress bar of long searches (`indicatif`, on standard error).
+//! The terminal progress bar of long searches and simulations (`indicatif`, on standard error).
 //!
 //! Owns only presentation of progress: it is hidden when standard error is not a terminal or
 //! when the user asked for quiet, so piped output and CI logs stay clean. It never touches
@@ -42,6 +42,26 @@ impl Bar {
             unit,
             per_kt,
         }
+    }
+}
+
+impl Bar {
+    /// Starts counting `steps` steps of `what` (runs of a simulation).
+    pub fn start_counting(&self, steps: u64, what: &str) {
+        self.bar.set_length(steps);
+        self.bar.set_position(0);
+        self.bar.set_prefix(what.to_string());
+    }
+
+    /// One step done, with `message` beside the bar (safe from several threads).
+    pub fn step(&self, message: String) {
+        self.bar.set_message(message);
+        self.bar.inc(1);
+    }
+
+    /// Clears the bar.
+    pub fn finish_counting(&self) {
+        self.bar.finish_and_clear();
     }
 }
 

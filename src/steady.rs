@@ -81,10 +81,76 @@ pub struct SteadyState {
 
 /// Solves `R p = 0`, `sum p = 1` for an irreducible network.
 pub fn solve(network: &Network, settings: &SteadySettings) -> Result<SteadyState, SolveError> {
-    let (probabilities, method) = if network.len() <= settings.dense_limit {
-        (gth(network), Method::DenseGth)
+    solve_factored(network, settings).map(|(state, _)| state)
+}
+
+/// The factorisation of the generator behind a steady-state solve, kept so that further systems
+/// `R y = b` (with `sum b = 0`) cost one solve each: the fluctuations of a current need one
+/// (methods, section 12).
+pub enum Factors {
+    /// The GTH elimination: `a[i*n + j]` holds the censored rate `i -> j` at the time the larger
+    /// of `i, j` was eliminated, `exit[k]` the censored exit rate of `k` (state 0 last).
+    Gth { a: Vec<f64>, exit: Vec<f64> },
+    /// The sparse LU of the generator with the row and column of `reference` removed.
+    Sparse { lu: Box<SparseLu>, reference: usize },
+}
+
+impl Factors {
+    /// A solution `y` of `R y = b` for a right-hand side with `sum b = 0`, the one with
+    /// `y = 0` at the eliminated state (the solutions differ by multiples of `p`).
+    pub fn solve(&self, b: &[f64]) -> Vec<f64> {
+        match self {
+            Factors::Gth { a, exit } => {
+                // `R y = b` is `y^T Q = b^T` with `Q` the rate matrix; eliminating the states
+                // as GTH did carries the right-hand side along (methods, section 12).
+                let n = exit.len();
+                let mut b = b.to_vec();
+                for k in (1..n).rev() {
+                    let s = exit[k];
+                    for j in 0..k {
+                        b[j] += b[k] * a[k * n + j] / s;
+                    }
+                }
+                // Back substitution by rows (each solved `y_k` pushed into the states above
+                // it), so that the factors are read contiguously.
+                let (mut y, mut inflow) = (vec![0.0; n], vec![0.0; n]);
+                for k in 1..n {
+                    y[k] = (inflow[k] - b[k]) / exit[k];
+                    let row = &a[k * n..(k + 1) * n];
+                    for j in k + 1..n {
+                        inflow[j] += y[k] * row[j];
+                    }
+                }
+                y
+            }
+            Factors::Sparse { lu, reference } => {
+                let (n, reference) = (b.len(), *reference);
+                let mut x =
+                    Mat::<f64>::from_fn(n - 1, 1, |r, _| b[if r < reference { r } else { r + 1 }]);
+                lu.solve_in_place(x.as_mut());
+                (0..n)
+                    .map(|i| match i.cmp(&reference) {
+                        std::cmp::Ordering::Less => x[(i, 0)],
+                        std::cmp::Ordering::Equal => 0.0,
+                        std::cmp::Ordering::Greater => x[(i - 1, 0)],
+                    })
+                    .collect()
+            }
+        }
+    }
+}
+
+/// [`solve`], keeping the factorisation of the generator for further solves.
+pub fn solve_factored(
+    network: &Network,
+    settings: &SteadySettings,
+) -> Result<(SteadyState, Factors), SolveError> {
+    let (probabilities, method, factors) = if network.len() <= settings.dense_limit {
+        let (p, factors) = gth(network);
+        (p, Method::DenseGth, factors)
     } else {
-        (sparse(network, settings)?, Method::SparseLu)
+        let (p, factors) = sparse(network, settings)?;
+        (p, Method::SparseLu, factors)
     };
     if let Some(bad) = probabilities
         .iter()
@@ -103,11 +169,14 @@ pub fn solve(network: &Network, settings: &SteadySettings) -> Result<SteadyState
         )));
     }
     let relative_residual = relative_residual(network, &probabilities);
-    Ok(SteadyState {
-        probabilities,
-        method,
-        relative_residual,
-    })
+    Ok((
+        SteadyState {
+            probabilities,
+            method,
+            relative_residual,
+        },
+        factors,
+    ))
 }
 
 /// `R p` for the network's generator (net probability inflow into each state).
@@ -128,21 +197,27 @@ pub fn relative_residual(network: &Network, p: &[f64]) -> f64 {
     rp.iter().map(|x| x.abs()).fold(0.0, f64::max) / scale
 }
 
-/// Dense GTH on the network's rate matrix.
-fn gth(network: &Network) -> Vec<f64> {
+/// Dense GTH on the network's rate matrix, with its elimination kept.
+fn gth(network: &Network) -> (Vec<f64>, Factors) {
     let n = network.len();
     let mut a = vec![0.0; n * n]; // a[i*n + j]: rate i -> j
     for c in &network.channels {
         a[c.from * n + c.to] += c.forward;
         a[c.to * n + c.from] += c.backward;
     }
-    gth_rates(&mut a, n)
+    let (p, exit) = gth_eliminate(&mut a, n);
+    (p, Factors::Gth { a, exit })
 }
 
 /// Dense GTH (Grassmann-Taksar-Heyman): censor states n-1, ..., 1 in turn, then rebuild by back
 /// substitution. `a[i*n + j]` is the total rate i -> j (diagonal ignored); `a` is overwritten.
 /// Subtraction-free, so every probability keeps a small relative error however tiny it is.
 pub fn gth_rates(a: &mut [f64], n: usize) -> Vec<f64> {
+    gth_eliminate(a, n).0
+}
+
+/// [`gth_rates`], returning the censored exit rates beside the probabilities.
+fn gth_eliminate(a: &mut [f64], n: usize) -> (Vec<f64>, Vec<f64>) {
     let mut exit = vec![0.0; n];
     for k in (1..n).rev() {
         let s: f64 = a[k * n..k * n + k].iter().sum();
@@ -162,7 +237,7 @@ pub fn gth_rates(a: &mut [f64], n: usize) -> Vec<f64> {
         p[k] = (0..k).map(|i| p[i] * a[i * n + k]).sum::<f64>() / exit[k];
     }
     normalise(&mut p);
-    p
+    (p, exit)
 }
 
 fn normalise(p: &mut [f64]) {
@@ -259,24 +334,32 @@ impl Adjacency {
 /// The reference state should be a probable one (eliminating an improbable state scales the
 /// solve by its tiny probability), so the state with the largest exit rate is tried first and,
 /// if it turns out to be improbable, the solve is repeated with the most probable state.
-fn sparse(network: &Network, settings: &SteadySettings) -> Result<Vec<f64>, SolveError> {
+fn sparse(network: &Network, settings: &SteadySettings) -> Result<(Vec<f64>, Factors), SolveError> {
     let n = network.len();
     let adjacency = Adjacency::new(network);
     let first = (0..n)
         .max_by(|&a, &b| adjacency.exit[a].total_cmp(&adjacency.exit[b]))
         .unwrap_or(0);
-    let mut p = sparse_with_reference(network, &adjacency, first)?;
+    let (mut p, mut lu) = sparse_with_reference(network, &adjacency, first)?;
+    let mut reference = first;
     // A badly scaled first solve can return the most probable state with the wrong sign.
     let best = (0..n)
         .max_by(|&a, &b| p[a].abs().total_cmp(&p[b].abs()))
         .unwrap_or(first);
     let first_is_probable = p[first] >= 1e-3 * p[best].abs(); // false also for NaN
     if best != first && !first_is_probable {
-        p = sparse_with_reference(network, &adjacency, best)?;
+        (p, lu) = sparse_with_reference(network, &adjacency, best)?;
+        reference = best;
     }
     resolve_small_components(&adjacency, &mut p, settings.max_levels)?;
     normalise(&mut p);
-    Ok(p)
+    Ok((
+        p,
+        Factors::Sparse {
+            lu: Box::new(lu),
+            reference,
+        },
+    ))
 }
 
 /// One sparse solve with `reference` eliminated (its probability fixed to 1), refined twice.
@@ -284,7 +367,7 @@ fn sparse_with_reference(
     network: &Network,
     adjacency: &Adjacency,
     reference: usize,
-) -> Result<Vec<f64>, SolveError> {
+) -> Result<(Vec<f64>, SparseLu), SolveError> {
     let n = network.len();
     let reduced = |i: usize| if i < reference { i } else { i - 1 };
     let mut triplets = Vec::with_capacity(4 * network.channels.len() + n);
@@ -333,7 +416,7 @@ fn sparse_with_reference(
             x[(r, 0)] += correction[(r, 0)];
         }
     }
-    Ok(expand(&x))
+    Ok((expand(&x), lu))
 }
 
 /// Re-solves, level by level, the components too small for the previous solve's absolute
@@ -420,7 +503,7 @@ pub struct Observables {
 /// small multiple of `n eps` in practice (common practice; the proven componentwise bounds of
 /// O'Cinneide, Numer. Math. 65, 109 (1993) are larger), and the sparse path refines until it
 /// matches. The same constant has always been used by the design verification.
-fn probability_accuracy(n: usize) -> f64 {
+pub fn probability_accuracy(n: usize) -> f64 {
     8.0 * n as f64 * f64::EPSILON
 }
 

@@ -6,12 +6,14 @@
 use crate::model::{Model, ModelError, PairSelection};
 use crate::report::output::{to_json, OutputError};
 use crate::report::{check::check_text, steady::SteadyReport};
-use crate::steady::{self, SolveError, SteadySettings};
+use crate::steady::{SolveError, SteadySettings};
 use crate::units::GivenRate;
 use std::path::Path;
 
 pub mod files;
+mod precision;
 mod search;
+pub use precision::{simulate, SimulateRequest};
 pub use search::{
     compare, design, merge, sweep, BudgetFlags, CompareRequest, DesignRequest, SearchKnobs,
     SweepRequest,
@@ -207,9 +209,9 @@ fn emit_in(
 /// `ergopath steady`: stationary distribution and power budget.
 pub fn steady(path: &Path, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
     let model = Model::load(path)?;
-    let state = steady::solve(&model.network, &SteadySettings::default())?;
-    let obs = steady::observe(&model.network, &state.probabilities);
-    let report = SteadyReport::new(&model, &state, &obs);
+    let (state, obs, precision) =
+        crate::fluctuation::of_network(&model.network, &SteadySettings::default())?;
+    let report = SteadyReport::new(&model, &state, &obs, &precision);
     let rendered = Rendered {
         text: report.text(&model),
         json: to_json(&report)?,
@@ -371,6 +373,12 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
     );
     report.rate_capped_failure = capped_failure
         .map(|(rate_cap, reason)| crate::report::bound::CappedFailure { rate_cap, reason });
+    attach_precision(
+        &model,
+        &mut report,
+        attaining.design.as_ref(),
+        capped.as_ref(),
+    )?;
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
@@ -384,6 +392,34 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         request.save_root.as_deref(),
         rendered,
     )
+}
+
+/// The fluctuations of the work current of the baseline and of every design a bound report
+/// shows, each from its own steady state (methods, section 12).
+fn attach_precision(
+    model: &Model,
+    report: &mut crate::report::bound::BoundReport,
+    design: Option<&crate::bound::design::VerifiedDesign>,
+    capped: Option<&(f64, crate::bound::design::VerifiedDesign)>,
+) -> Result<(), Error> {
+    use crate::report::precision::PrecisionJson;
+    let u = &model.units;
+    use precision::design_precision;
+    let baseline = design_precision(&model.network, &[])?;
+    report.precision = Some(PrecisionJson::of(&baseline, u));
+    if let (Some(json), Some(d)) = (report.design.as_mut(), design) {
+        json.precision = Some(PrecisionJson::of(
+            &design_precision(&model.network, &d.pathways)?,
+            u,
+        ));
+    }
+    if let (Some(json), Some((_, d))) = (report.rate_capped.as_mut(), capped) {
+        json.design.precision = Some(PrecisionJson::of(
+            &design_precision(&model.network, &d.pathways)?,
+            u,
+        ));
+    }
+    Ok(())
 }
 
 /// Settings of `ergopath regimes`.

@@ -520,6 +520,8 @@ pub struct DesignRequest {
     pub resume: bool,
     /// Testing aid: behave as if interrupted after this many new branches.
     pub stop_after: Option<usize>,
+    /// Keep only ranked designs whose Fano factor `|2D/J|` is at most this (energy unit).
+    pub max_fano: Option<f64>,
     pub format: Format,
     pub save_root: Option<PathBuf>,
 }
@@ -550,6 +552,9 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     let settings = request
         .knobs
         .settings(resolve_budget(&model, &request.budget)?)?;
+    if request.max_fano.is_some() && request.shard.is_some() {
+        return Err(Error::Usage("--max-fano and --shard do not combine: a shard writes all its designs to its part file; give --max-fano to a run without --shard".into()));
+    }
     if request.checkpoint.is_some() && request.shard.is_some() {
         return Err(Error::Usage("--checkpoint and --shard do not combine: shards are already resumable (rerun the missing ones)".into()));
     }
@@ -632,6 +637,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             &outcome,
             request.format,
             request.save_root.as_deref(),
+            request.max_fano,
         );
     }
     write_part(path, &model, &pairs, part, request.save_root.as_deref())
@@ -673,14 +679,17 @@ fn design_output(
     outcome: &Outcome,
     format: Format,
     save_root: Option<&Path>,
+    max_fano: Option<f64>,
 ) -> Result<String, Error> {
+    let (outcome, precisions, left_out) = super::precision::screen(model, outcome, max_fano)?;
     let network = &model.network;
     let oriented = outcome
         .designs
         .iter()
         .map(|d| design::oriented(network, d.pathways(network)))
         .collect::<Result<Vec<_>, _>>()?;
-    let report = DesignReport::new(model, bound, describe(model, pairs), outcome, &oriented);
+    let mut report = DesignReport::new(model, bound, describe(model, pairs), &outcome, &oriented);
+    report.attach_precision(&precisions, &model.units, max_fano, left_out);
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
@@ -801,7 +810,7 @@ pub fn merge(
     }
     let outcome = search::merge(parts)?;
     let bound = solve_bound(&model, &pairs)?;
-    design_output(&model, &pairs, &bound, &outcome, format, save_root)
+    design_output(&model, &pairs, &bound, &outcome, format, save_root, None)
 }
 
 /// A budget quantity a sweep can vary.
@@ -1134,7 +1143,7 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         }
     }
     bar.finish();
-    let points: Vec<SweepPoint> = done
+    let mut points: Vec<SweepPoint> = done
         .iter()
         .map(|d| {
             SweepPoint::new(
@@ -1148,6 +1157,8 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
             )
         })
         .collect();
+    let bests: Vec<Option<&search::Found>> = done.iter().map(|d| d.best.as_ref()).collect();
+    let baseline = super::precision::sweep_precision(&model, &bests, &mut points)?;
     let first = resolve_budget(&model, &with_value(request.budget, over, values[0]))?;
     let report = SweepReport::new(
         &model,
@@ -1163,13 +1174,14 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         csv: Some(report.csv()),
         svg: Some(report.svg()),
     };
-    emit(
+    let out = emit(
         &model,
         &format!("sweep-{}", over.name()),
         request.format,
         request.save_root.as_deref(),
         rendered,
-    )
+    )?;
+    super::precision::emit_frontier(&model, &report, &baseline, request, out)
 }
 
 /// A bare budget number means a different physical budget in models with different units (1000

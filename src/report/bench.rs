@@ -86,15 +86,18 @@ pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
                 r.method.into(),
                 format!("{:.1e}", r.relative_residual),
                 megabytes(r.peak_mb),
+                format!("{:.2}", r.precision_seconds / r.observed_seconds),
             ];
             let line = format!(
-                "{},{},{:e},{},{:e},{}",
+                "{},{},{:e},{},{:e},{},{:e},{:e}",
                 r.family.name(),
                 r.states,
                 r.seconds,
                 r.method,
                 r.relative_residual,
-                csv_megabytes(r.peak_mb)
+                csv_megabytes(r.peak_mb),
+                r.observed_seconds,
+                r.precision_seconds
             );
             (cells, line)
         })
@@ -106,10 +109,11 @@ pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
         ("method", Align::Left),
         ("residual", Align::Right),
         ("peak MB", Align::Right),
+        ("x with precision", Align::Right),
     ];
     tabulate(
         &columns,
-        "family,states,median_seconds,method,relative_residual,peak_mb",
+        "family,states,median_seconds,method,relative_residual,peak_mb,observed_seconds,precision_seconds",
         &rows,
     )
 }

@@ -2,6 +2,7 @@
 //! optimal distribution beside the baseline, the attaining design, its speed table, and the
 //! rate-capped design when a cap is given.
 
+use super::precision::PrecisionJson;
 use super::table::{bounded, num, percent, wrap, Align, Table};
 use super::{named_distribution, named_log_distribution, StateProbability, UnitsJson};
 use crate::bound::design::VerifiedDesign;
@@ -69,6 +70,8 @@ pub struct DesignJson {
     pub predicted_power: f64,
     /// Largest added rate.
     pub largest_rate: f64,
+    /// Fluctuations of the work current of baseline plus pathways (methods, section 12).
+    pub precision: Option<PrecisionJson>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -116,6 +119,8 @@ pub struct BoundReport {
     pub speed_curve: Vec<(f64, f64)>,
     pub regime: RegimeJson,
     pub closed_forms: ClosedForms,
+    /// Fluctuations of the baseline's work current (methods, section 12); set by the command.
+    pub precision: Option<PrecisionJson>,
     pub cautions: Vec<crate::model::Caution>,
 }
 
@@ -197,6 +202,7 @@ impl DesignJson {
                 .iter()
                 .map(|p| p.forward.max(p.backward))
                 .fold(0.0, f64::max),
+            precision: None,
         }
     }
 }
@@ -256,6 +262,7 @@ impl BoundReport {
                 rate_cap,
                 design: DesignJson::new(d, model, bound),
             }),
+            precision: None,
             cautions: bound_cautions(model, design, capped),
         }
     }
@@ -280,6 +287,11 @@ impl BoundReport {
             num(self.maintenance_cost),
             self.route
         ));
+        if let Some(pr) = &self.precision {
+            out.push_str("  baseline fluctuations of the work current:\n");
+            out.push_str(&pr.lines(&self.units, "    "));
+            out.push('\n');
+        }
         let mut dist = Table::new(&[
             ("state", Align::Left),
             ("baseline p", Align::Right),
@@ -319,6 +331,11 @@ impl BoundReport {
                 num(f.rate_cap),
                 f.reason
             ));
+        }
+        if self.precision.is_some() {
+            out.push('\n');
+            out.push_str(&wrap(super::precision::PRECISION_CAUTION, "  ", 78));
+            out.push('\n');
         }
         out.push_str(&super::cautions_text(&self.cautions));
         out
@@ -508,5 +525,9 @@ fn design_text(d: &DesignJson, units: &UnitsJson) -> String {
         "  construction predicts {} {power_unit}\n",
         num(d.predicted_power)
     ));
+    if let Some(pr) = &d.precision {
+        out.push_str("  fluctuations of the work current with this design:\n");
+        out.push_str(&pr.lines(units, "    "));
+    }
     out
 }

@@ -3,7 +3,8 @@
 //! chart of the share of the headroom by rank.
 
 use super::bound::{BoundNumbers, PathwayJson};
-use super::table::{num, percent, sci, wrap, Align, Table};
+use super::precision::{PrecisionJson, PRECISION_CAUTION};
+use super::table::{bounded, num, percent, sci, wrap, Align, Table};
 use super::{csv_field, UnitsJson};
 use crate::bound::{design::Pathway, Bound};
 use crate::model::Model;
@@ -102,6 +103,8 @@ pub struct RankedDesign {
     pub largest_work: f64,
     /// Entropy production of the added pathways (k_B per time unit).
     pub added_entropy_production: f64,
+    /// Fluctuations of the work current of baseline plus pathways (methods, section 12).
+    pub precision: Option<PrecisionJson>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -119,6 +122,10 @@ pub struct DesignReport {
     /// Designs left out of the ranking: their verified power is not determined by double
     /// precision (its round-off bound covers their gain over the baseline).
     pub undetermined_designs: u64,
+    /// `--max-fano`: the Fano-factor limit (energy unit) the ranked designs meet.
+    pub max_fano: Option<f64>,
+    /// Designs the search ranked that `max_fano` left out.
+    pub left_out_by_fano: usize,
     pub cautions: Vec<crate::model::Caution>,
 }
 
@@ -140,6 +147,7 @@ impl RankedDesign {
                 / found.copies.max(1) as f64,
             largest_work: u.from_kt(pathways.iter().map(|p| p.work.abs()).fold(0.0, f64::max)),
             added_entropy_production: found.added_entropy,
+            precision: None,
         }
     }
 }
@@ -188,6 +196,8 @@ impl DesignReport {
             },
             evaluated: outcome.evaluated,
             undetermined_designs: outcome.undetermined,
+            max_fano: None,
+            left_out_by_fano: 0,
             cautions: design_cautions(model, outcome),
             designs: outcome
                 .designs
@@ -197,6 +207,52 @@ impl DesignReport {
                 .map(|(i, (f, pathways))| RankedDesign::new(i + 1, f, pathways, model, bound))
                 .collect(),
         }
+    }
+
+    /// The precision of each ranked design (in rank order) and the Fano-factor screen.
+    pub fn attach_precision(
+        &mut self,
+        precisions: &[crate::fluctuation::Precision],
+        units: &crate::units::Units,
+        max_fano: Option<f64>,
+        left_out: usize,
+    ) {
+        for (d, p) in self.designs.iter_mut().zip(precisions) {
+            d.precision = Some(PrecisionJson::of(p, units));
+        }
+        self.max_fano = max_fano;
+        self.left_out_by_fano = left_out;
+    }
+
+    /// The precision table of the ranked designs, with the screen's note.
+    fn precision_text(&self) -> String {
+        let (e, t) = (&self.units.energy, &self.units.time);
+        let mut out = String::from(
+            "\nHow steady each ranked design's power is (fluctuations of the work current):\n",
+        );
+        let mut table = Table::new(&[
+            ("rank", Align::Right),
+            (&format!("diffusion D {e}^2/{t}"), Align::Right),
+            (&format!("Fano 2D/J {e}"), Align::Right),
+            ("uncertainty product Q", Align::Right),
+        ]);
+        for d in &self.designs {
+            let Some(pr) = &d.precision else { continue };
+            table.row(vec![
+                d.rank.to_string(),
+                bounded(pr.diffusion, pr.diffusion_roundoff),
+                pr.fano_text(),
+                pr.product_text(),
+            ]);
+        }
+        out.push_str(&table.render());
+        if let Some(x) = self.max_fano {
+            out.push_str(&wrap(&format!("--max-fano {}: only designs whose Fano factor |2D/J| is at most {} {e} within its round-off are ranked; {} of the designs the search found {} left out (a design whose Fano factor is not determined is left out too). The limit screens the best designs by power; it does not search for the most regular ones.", num(x), num(x), self.left_out_by_fano, if self.left_out_by_fano == 1 { "was" } else { "were" }), "  ", 78));
+            out.push('\n');
+        }
+        out.push_str(&wrap(PRECISION_CAUTION, "  ", 78));
+        out.push('\n');
+        out
     }
 
     pub fn text(&self) -> String {
@@ -280,6 +336,9 @@ impl DesignReport {
             "\nRates of the ranked designs (each verified by an independent steady-state solve; every\npathway written in the direction of its net flux):\n",
         );
         out.push_str(&rates.render());
+        if self.designs.iter().any(|d| d.precision.is_some()) || self.max_fano.is_some() {
+            out.push_str(&self.precision_text());
+        }
         out.push_str(&super::cautions_text(&self.cautions));
         out
     }

@@ -11,6 +11,7 @@ pub mod check;
 pub mod compare;
 pub mod design;
 pub mod output;
+pub mod precision;
 pub mod regimes;
 pub mod steady;
 pub mod summary;

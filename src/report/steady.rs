@@ -1,7 +1,10 @@
 //! The `steady` report: stationary distribution, per-transition fluxes and the power budget.
 
+use super::precision::{PrecisionJson, PRECISION_CAUTION};
+use super::table::wrap;
 use super::table::{bounded, num, percent, sci, Align, Table};
 use super::{csv_field, named_distribution, transition_name, StateProbability, UnitsJson};
+use crate::fluctuation::Precision;
 use crate::model::Model;
 use crate::steady::{Observables, SteadyState};
 use serde::Serialize;
@@ -26,6 +29,8 @@ pub struct SteadyReport {
     pub power_watts_per_molecule: f64,
     /// Relative error of `drive power - power = kT * entropy production`.
     pub free_energy_balance_error: f64,
+    /// Fluctuations of the work current (methods, section 12).
+    pub precision: PrecisionJson,
     pub cautions: Vec<crate::model::Caution>,
 }
 
@@ -42,7 +47,12 @@ pub struct TransitionFlux {
 }
 
 impl SteadyReport {
-    pub fn new(model: &Model, steady: &SteadyState, obs: &Observables) -> Self {
+    pub fn new(
+        model: &Model,
+        steady: &SteadyState,
+        obs: &Observables,
+        precision: &Precision,
+    ) -> Self {
         let u = &model.units;
         let transitions = model
             .network
@@ -74,6 +84,7 @@ impl SteadyReport {
             efficiency: obs.efficiency,
             power_watts_per_molecule: u.watts(obs.power),
             free_energy_balance_error: obs.balance_error,
+            precision: PrecisionJson::of(precision, u),
             cautions: model.cautions.clone(),
         }
     }
@@ -121,6 +132,10 @@ impl SteadyReport {
             "  checks               free-energy balance {:.1e}, residual {:.1e}\n",
             self.free_energy_balance_error, self.relative_residual
         ));
+        out.push_str("\nHow steady the harvested power is (fluctuations of the work current):\n");
+        out.push_str(&self.precision.lines(&self.units, "  "));
+        out.push_str(&wrap(PRECISION_CAUTION, "  ", 78));
+        out.push('\n');
         out.push_str(&super::cautions_text(&self.cautions));
         out
     }

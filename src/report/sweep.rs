@@ -4,6 +4,7 @@
 
 use super::bound::{BoundNumbers, PathwayJson};
 use super::design::BudgetJson;
+use super::precision::PrecisionJson;
 use super::table::{num, percent, wrap, Align, Table};
 use super::UnitsJson;
 use crate::bound::Bound;
@@ -27,6 +28,8 @@ pub struct SweepPoint {
     /// Capped convex relaxation over all candidate pairs: no design within the budget exceeds
     /// it, whatever the number of pathways.
     pub relaxation: Option<f64>,
+    /// Fluctuations of the work current with the best design (methods, section 12).
+    pub precision: Option<PrecisionJson>,
 }
 
 impl SweepPoint {
@@ -57,6 +60,7 @@ impl SweepPoint {
             evaluated,
             carried_over,
             relaxation: relaxation.is_finite().then(|| u.from_kt(relaxation)),
+            precision: None,
         }
     }
 }
@@ -179,6 +183,97 @@ impl SweepReport {
             ));
         }
         out
+    }
+
+    /// Power against the Fano factor of the best design at each budget value (the
+    /// power-precision trade-off), with the baseline's own point: a table.
+    pub fn frontier_text(&self, baseline: &PrecisionJson) -> String {
+        let (p, e) = (&self.units.power, self.units.energy);
+        let mut out = format!(
+            "Power against precision of the best designs ({} sweep) for {}
+
+",
+            self.over, self.title
+        );
+        let mut table = Table::new(&[
+            (
+                &format!("{} {}", self.over, self.value_unit()),
+                Align::Right,
+            ),
+            (&format!("power {p}"), Align::Right),
+            (&format!("Fano 2D/J {e}"), Align::Right),
+            ("uncertainty product Q", Align::Right),
+        ]);
+        table.row(vec![
+            "baseline".into(),
+            num(self.baseline_power),
+            baseline.fano_text(),
+            baseline.product_text(),
+        ]);
+        for point in &self.points {
+            let (Some(power), Some(pr)) = (point.best_power, &point.precision) else {
+                continue;
+            };
+            table.row(vec![
+                num(point.value),
+                num(power),
+                pr.fano_text(),
+                pr.product_text(),
+            ]);
+        }
+        out.push_str(&table.render());
+        out.push_str(&wrap("A smaller Fano factor is a more regular work current. The designs are the best by power at each budget; the chart shows what regularity that power comes with, not the most regular design the budget allows.", "  ", 78));
+        out.push('\n');
+        out.push_str(&wrap(super::precision::PRECISION_CAUTION, "  ", 78));
+        out.push('\n');
+        out
+    }
+
+    /// Power against the Fano factor (`|2D/J|`, points with a determined Fano factor only):
+    /// the best design at each budget value and the baseline.
+    pub fn frontier_svg(&self, baseline: &PrecisionJson) -> Option<String> {
+        use super::svg::{Chart, Series};
+        let fano = |pr: &PrecisionJson| {
+            pr.fano_factor
+                .zip(pr.fano_factor_roundoff)
+                .filter(|(f, r)| super::table::determined(*f, *r))
+                .map(|(f, _)| f.abs())
+        };
+        let points: Vec<(f64, f64)> = self
+            .points
+            .iter()
+            .filter_map(|p| Some((fano(p.precision.as_ref()?)?, p.best_power?)))
+            .collect();
+        if points.is_empty() {
+            return None;
+        }
+        let mut series = vec![Series {
+            name: "best design at each budget".into(),
+            points,
+            dashed: false,
+            markers: true,
+            joined: true,
+        }];
+        if let Some(f) = fano(baseline) {
+            series.push(Series {
+                name: "baseline".into(),
+                points: vec![(f, self.baseline_power)],
+                dashed: false,
+                markers: true,
+                joined: false,
+            });
+        }
+        Some(
+            Chart {
+                title: format!("Power and precision of the best designs: {}", self.title),
+                x_label: format!("Fano factor 2D/J ({})", self.units.energy),
+                y_label: format!("power ({})", self.units.power),
+                log_x: false,
+                log_y: false,
+                series,
+            }
+            .render(),
+        )
     }
 
     /// Power against the budget: best design, the relaxation, the universal bound and the

@@ -30,11 +30,18 @@ pub(crate) fn design_precision(
 /// those whose `|2D/J|` plus its round-off bound is at most the limit (a design whose Fano factor
 /// is not determined cannot be shown to meet it and is left out). Returns the kept outcome,
 /// the precision of each kept design in rank order, and how many were left out.
+/// How many times `--top` designs the search keeps by power when `--max-fano` screens them.
+pub const FANO_POOL: usize = 10;
+
 pub(crate) fn screen(
     model: &Model,
     outcome: &Outcome,
-    max_fano: Option<f64>,
+    max_fano: Option<(f64, usize)>,
 ) -> Result<(Outcome, Vec<Precision>, usize), Error> {
+    let (max_fano, top) = match max_fano {
+        Some((x, top)) => (Some(x), top),
+        None => (None, usize::MAX),
+    };
     if let Some(x) = max_fano.filter(|x| !(x.is_finite() && *x > 0.0)) {
         return Err(Error::Usage(format!(
             "--max-fano {x}: give a positive Fano factor 2D/J in the model's energy unit ({}), e.g. --max-fano 10",
@@ -53,6 +60,9 @@ pub(crate) fn screen(
             (Some(limit), Some(f)) => f.value.abs() + f.roundoff <= limit,
             (Some(_), None) => false,
         };
+        if meets && kept.designs.len() == top {
+            break;
+        }
         if meets {
             kept.designs.push(found.clone());
             precisions.push(precision);

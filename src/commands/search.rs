@@ -549,9 +549,19 @@ fn selection_of(pairs: &PairSelection) -> Option<Vec<(usize, usize)>> {
 pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     let model = Model::load(path)?;
     let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
-    let settings = request
-        .knobs
-        .settings(resolve_budget(&model, &request.budget)?)?;
+    // With a precision limit the search keeps a wider pool by power, so that the limit picks
+    // the best designs that meet it among more than the top few.
+    let pool = SearchKnobs {
+        top: match request.max_fano {
+            Some(_) => request
+                .knobs
+                .top
+                .saturating_mul(super::precision::FANO_POOL),
+            None => request.knobs.top,
+        },
+        ..request.knobs
+    };
+    let settings = pool.settings(resolve_budget(&model, &request.budget)?)?;
     if request.max_fano.is_some() && request.shard.is_some() {
         return Err(Error::Usage("--max-fano and --shard do not combine: a shard writes all its designs to its part file; give --max-fano to a run without --shard".into()));
     }
@@ -637,7 +647,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             &outcome,
             request.format,
             request.save_root.as_deref(),
-            request.max_fano,
+            request.max_fano.map(|x| (x, request.knobs.top)),
         );
     }
     write_part(path, &model, &pairs, part, request.save_root.as_deref())
@@ -679,9 +689,10 @@ fn design_output(
     outcome: &Outcome,
     format: Format,
     save_root: Option<&Path>,
-    max_fano: Option<f64>,
+    max_fano: Option<(f64, usize)>,
 ) -> Result<String, Error> {
     let (outcome, precisions, left_out) = super::precision::screen(model, outcome, max_fano)?;
+    let max_fano = max_fano.map(|(x, _)| x);
     let network = &model.network;
     let oriented = outcome
         .designs
@@ -689,7 +700,13 @@ fn design_output(
         .map(|d| design::oriented(network, d.pathways(network)))
         .collect::<Result<Vec<_>, _>>()?;
     let mut report = DesignReport::new(model, bound, describe(model, pairs), &outcome, &oriented);
-    report.attach_precision(&precisions, &model.units, max_fano, left_out);
+    report.attach_precision(
+        &precisions,
+        &model.units,
+        max_fano,
+        left_out,
+        super::precision::FANO_POOL,
+    );
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,

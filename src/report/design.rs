@@ -126,6 +126,9 @@ pub struct DesignReport {
     pub max_fano: Option<f64>,
     /// Designs the search ranked that `max_fano` left out.
     pub left_out_by_fano: usize,
+    /// How many times `--top` designs the search kept for the screen.
+    #[serde(skip)]
+    pub fano_pool: usize,
     pub cautions: Vec<crate::model::Caution>,
 }
 
@@ -198,6 +201,7 @@ impl DesignReport {
             undetermined_designs: outcome.undetermined,
             max_fano: None,
             left_out_by_fano: 0,
+            fano_pool: 1,
             cautions: design_cautions(model, outcome),
             designs: outcome
                 .designs
@@ -216,12 +220,14 @@ impl DesignReport {
         units: &crate::units::Units,
         max_fano: Option<f64>,
         left_out: usize,
+        fano_pool: usize,
     ) {
         for (d, p) in self.designs.iter_mut().zip(precisions) {
             d.precision = Some(PrecisionJson::of(p, units));
         }
         self.max_fano = max_fano;
         self.left_out_by_fano = left_out;
+        self.fano_pool = fano_pool;
     }
 
     /// The precision table of the ranked designs, with the screen's note.
@@ -247,7 +253,7 @@ impl DesignReport {
         }
         out.push_str(&table.render());
         if let Some(x) = self.max_fano {
-            out.push_str(&wrap(&format!("--max-fano {}: only designs whose Fano factor |2D/J| is at most {} {e} within its round-off are ranked; {} of the designs the search found {} left out (a design whose Fano factor is not determined is left out too). The limit screens the best designs by power; it does not search for the most regular ones.", num(x), num(x), self.left_out_by_fano, if self.left_out_by_fano == 1 { "was" } else { "were" }), "  ", 78));
+            out.push_str(&wrap(&format!("--max-fano {}: only designs whose Fano factor |2D/J| is at most {} {e} within its round-off are ranked; {} of the designs the search kept ({} times --top, by power) {} left out (a design whose Fano factor is not determined is left out too). The limit screens those best designs by power; it does not search for the most regular ones.", num(x), num(x), self.left_out_by_fano, self.fano_pool, if self.left_out_by_fano == 1 { "was" } else { "were" }), "  ", 78));
             out.push('\n');
         }
         out.push_str(&wrap(PRECISION_CAUTION, "  ", 78));

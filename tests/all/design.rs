@@ -189,6 +189,15 @@ fn ranked(model: &Model, report: &Value) -> Ranked {
         .collect()
 }
 
+/// `(a, b, q+, q-)` of each pathway of a ranked design.
+fn added_pathways(pairs: &[(usize, usize)], rates: &[(f64, f64)]) -> Vec<(usize, usize, f64, f64)> {
+    pairs
+        .iter()
+        .zip(rates)
+        .map(|(&(a, b), &(f, g))| (a, b, f, g))
+        .collect()
+}
+
 /// Every ranked design is re-scored independently, respects the budget, and its stated power
 /// is the power of its rates; then each set's power equals the brute-force best for that set.
 fn check_against_brute_force(args: &[&str], limits: Limits, grid: usize, headroom_share: f64) {
@@ -213,11 +222,7 @@ fn check_against_brute_force(args: &[&str], limits: Limits, grid: usize, headroo
         assert!(close(share, gain / headroom, 1e-9, 1e-12));
     }
     for (pairs, rates, achieved) in &designs {
-        let added: Vec<(usize, usize, f64, f64)> = pairs
-            .iter()
-            .zip(rates)
-            .map(|(&(a, b), &(f, g))| (a, b, f, g))
-            .collect();
+        let added = added_pathways(pairs, rates);
         let limits_with_roundoff = Limits {
             cap: limits.cap * (1.0 + 1e-9),
             total: limits.total.map(|t| t * (1.0 + 1e-9)),
@@ -475,11 +480,7 @@ fn no_ranked_design_keeps_a_pathway_that_adds_nothing() {
             "{file}: no large set ranked"
         );
         for (pairs, rates, achieved) in &designs {
-            let added: Vec<(usize, usize, f64, f64)> = pairs
-                .iter()
-                .zip(rates)
-                .map(|(&(a, b), &(f, g))| (a, b, f, g))
-                .collect();
+            let added = added_pathways(pairs, rates);
             if added.len() < 2 {
                 continue; // a single pathway is compared with the baseline by the ranking itself
             }

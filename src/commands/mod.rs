@@ -211,7 +211,8 @@ pub fn steady(path: &Path, format: Format, save_root: Option<&Path>) -> Result<S
     let model = Model::load(path)?;
     let (state, obs, precision) =
         crate::fluctuation::of_network(&model.network, &SteadySettings::default())?;
-    let report = SteadyReport::new(&model, &state, &obs, &precision);
+    let cycles = crate::model::cycles::listed_cycles(&model.network).unwrap_or_default();
+    let report = SteadyReport::new(&model, &state, &obs, &precision, &cycles);
     let rendered = Rendered {
         text: report.text(&model),
         json: to_json(&report)?,

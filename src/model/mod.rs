@@ -7,6 +7,7 @@
 //! no steady states, no optimisation, no printing.
 
 pub mod caution;
+pub mod cycles;
 mod error;
 mod file;
 mod parse;

@@ -1,7 +1,9 @@
-//! The `check` report: a validated model summarised, with what LDB implied.
+//! The `check` report: a validated model summarised, with what LDB implied and its cycles (the
+//! basis from [`crate::model::cycles`]; no physics here).
 
 use super::table::{num, Align, Table};
 use super::transition_name;
+use crate::model::cycles::listed_cycles;
 use crate::model::{Completion, Model};
 
 /// Summary of a valid model: units, states, transitions with implied values marked, cycles.
@@ -56,6 +58,9 @@ pub fn check_text(model: &Model) -> String {
         ]);
     }
     out.push_str(&tr.render());
-    out.push_str("  * implied by local detailed balance\n");
+    out.push_str("  * implied by local detailed balance\n\n");
+    let basis = listed_cycles(&model.network).unwrap_or_default();
+    let cycles = super::cycles::cycles_json(model, &basis, None);
+    out.push_str(&super::cycles::cycles_text(model, &cycles));
     out
 }

@@ -9,6 +9,7 @@ pub mod bench;
 pub mod bound;
 pub mod check;
 pub mod compare;
+pub mod cycles;
 pub mod design;
 pub mod output;
 pub mod precision;

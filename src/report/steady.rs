@@ -31,6 +31,8 @@ pub struct SteadyReport {
     pub free_energy_balance_error: f64,
     /// Fluctuations of the work current (methods, section 12).
     pub precision: PrecisionJson,
+    /// The independent cycles with their affinities and cycle fluxes.
+    pub cycles: Vec<super::cycles::CycleJson>,
     pub cautions: Vec<crate::model::Caution>,
 }
 
@@ -52,6 +54,7 @@ impl SteadyReport {
         steady: &SteadyState,
         obs: &Observables,
         precision: &Precision,
+        cycles: &[crate::model::cycles::Cycle],
     ) -> Self {
         let u = &model.units;
         let transitions = model
@@ -85,6 +88,11 @@ impl SteadyReport {
             power_watts_per_molecule: u.watts(obs.power),
             free_energy_balance_error: obs.balance_error,
             precision: PrecisionJson::of(precision, u),
+            cycles: super::cycles::cycles_json(
+                model,
+                cycles,
+                Some((&obs.fluxes, &obs.flux_roundoff)),
+            ),
             cautions: model.cautions.clone(),
         }
     }
@@ -132,6 +140,8 @@ impl SteadyReport {
             "  checks               free-energy balance {:.1e}, residual {:.1e}\n",
             self.free_energy_balance_error, self.relative_residual
         ));
+        out.push('\n');
+        out.push_str(&super::cycles::cycles_text(model, &self.cycles));
         out.push_str("\nHow steady the harvested power is (fluctuations of the work current):\n");
         out.push_str(&self.precision.lines(&self.units, "  "));
         out.push_str(&wrap(PRECISION_CAUTION, "  ", 78));

@@ -270,3 +270,66 @@ fn unit_conversions_match_exact_si_values() {
         0.0
     ));
 }
+
+/// Cycle decomposition (J. Schnakenberg, Rev. Mod. Phys. 48, 571 (1976), section 5; T. L. Hill,
+/// J. Theor. Biol. 10, 442 (1966)): for a fundamental cycle basis every net flux is the sum of
+/// the fluxes of the cycles through it, and the entropy production is `sum J_cycle A_cycle`,
+/// the harvesting power `sum J_cycle w_cycle`. Checked on every shipped and fixture model from
+/// the `steady --json` figures (the identities tie the cycle table to the per-transition table,
+/// computed apart); the walker's two cycles against the labels of its file by hand: bind (60)
+/// plus slip (20) draw 80 pN nm per turn of the slip cycle, and the step cycle stores 16 pN nm
+/// and draws 20 - 20 = 0.
+#[test]
+fn cycle_fluxes_and_affinities_decompose_the_steady_state() {
+    for path in crate::common::all_models() {
+        let v = crate::common::run_json(&["steady", &path, "--json"]);
+        let f = |x: &serde_json::Value| x.as_f64().unwrap();
+        let cycles = v["cycles"].as_array().unwrap();
+        let transitions = v["transitions"].as_array().unwrap();
+        let states = v["states"].as_array().unwrap().len();
+        assert_eq!(cycles.len(), transitions.len() + 1 - states, "{path}");
+        // sum J A over cycles (kT) against entropy production; sum J w against the power.
+        let sigma: f64 = cycles
+            .iter()
+            .map(|c| f(&c["flux"]) * f(&c["affinity_kt"]))
+            .sum();
+        let scale: f64 = cycles
+            .iter()
+            .map(|c| (f(&c["flux"]) * f(&c["affinity_kt"])).abs())
+            .sum::<f64>()
+            .max(1e-300);
+        assert!(
+            (sigma - f(&v["entropy_production"])).abs() <= 1e-9 * scale,
+            "{path}: {sigma} vs {}",
+            v["entropy_production"]
+        );
+        let power: f64 = cycles
+            .iter()
+            .map(|c| f(&c["flux"]) * f(&c["work_per_turn"]))
+            .sum();
+        let power_scale: f64 = cycles
+            .iter()
+            .map(|c| (f(&c["flux"]) * f(&c["work_per_turn"])).abs())
+            .sum::<f64>();
+        assert!(
+            (power - f(&v["power"])).abs() <= 1e-9 * power_scale + f(&v["power_roundoff"]),
+            "{path}: {power} vs {}",
+            v["power"]
+        );
+    }
+    let v = crate::common::run_json(&["steady", "problems/walker.toml", "--json"]);
+    let mut per_turn: Vec<(f64, f64)> = v["cycles"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            (
+                c["drive_per_turn"].as_f64().unwrap(),
+                c["work_per_turn"].as_f64().unwrap(),
+            )
+        })
+        .collect();
+    per_turn.sort_by(|a, b| a.0.total_cmp(&b.0));
+    assert!(per_turn[0].0.abs() < 1e-12 && (per_turn[0].1 - 16.0).abs() < 1e-12);
+    assert!((per_turn[1].0 - 80.0).abs() < 1e-12 && per_turn[1].1.abs() < 1e-12);
+}

@@ -36,9 +36,12 @@ enum Command {
         /// The shell
         shell: clap_complete::Shell,
     },
-    /// Print the manual page (roff) to standard output
+    /// Print the manual (roff): the overview page and one page per subcommand
     #[command(after_help = "Example:\n  ergopath man > ergopath.1 && man ./ergopath.1")]
     Man,
+    /// Print the complete model-file and JSON reference (docs/model-format.md)
+    #[command(after_help = "Example:\n  ergopath reference | less")]
+    Reference,
     /// Validate a model file and summarise it (states, transitions, implied values, cycles)
     #[command(after_help = "Example:\n  ergopath check problems/walker.toml")]
     Check {
@@ -71,7 +74,7 @@ enum Command {
         /// Share of the headroom the printed design reaches
         #[arg(long, default_value_t = 0.99)]
         target: f64,
-        /// Print one JSON object (every key is listed in docs/model-format.md)
+        /// Print one JSON object (every key: `ergopath reference`, or docs/model-format.md)
         #[arg(long)]
         json: bool,
         #[command(flatten)]
@@ -133,7 +136,7 @@ enum Command {
         /// No progress bar
         #[arg(long)]
         quiet: bool,
-        /// Print one JSON object (every key is listed in docs/model-format.md)
+        /// Print one JSON object (every key: `ergopath reference`, or docs/model-format.md)
         #[arg(long)]
         json: bool,
         /// Also write the report and a chart of the accumulated work of the first runs to results/<model name>/
@@ -385,7 +388,7 @@ impl SaveFlag {
 
 #[derive(Args)]
 struct FormatFlags {
-    /// Print one JSON object (every key is listed in docs/model-format.md)
+    /// Print one JSON object (every key: `ergopath reference`, or docs/model-format.md)
     #[arg(long, conflicts_with = "csv")]
     json: bool,
     /// Print the per-transition table as CSV
@@ -403,6 +406,22 @@ impl FormatFlags {
     }
 }
 
+/// The overview page followed by one page per subcommand (`ergopath-design(1)`, ...), in roff.
+fn manual() -> Result<String, ergopath::Error> {
+    let fail = |e: std::io::Error| ergopath::Error::Usage(format!("cannot render the manual: {e}"));
+    let mut out = Vec::new();
+    let command = Cli::command();
+    clap_mangen::Man::new(command.clone())
+        .render(&mut out)
+        .map_err(fail)?;
+    for sub in command.get_subcommands() {
+        let name = format!("ergopath-{}", sub.get_name());
+        let page = sub.clone().display_name(name);
+        clap_mangen::Man::new(page).render(&mut out).map_err(fail)?;
+    }
+    Ok(String::from_utf8_lossy(&out).into_owned())
+}
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match &cli.command {
@@ -412,15 +431,8 @@ fn main() -> ExitCode {
             clap_complete::generate(*shell, &mut Cli::command(), "ergopath", &mut out);
             Ok(String::from_utf8_lossy(&out).into_owned())
         }
-        Command::Man => {
-            let mut out = Vec::new();
-            match clap_mangen::Man::new(Cli::command()).render(&mut out) {
-                Ok(()) => Ok(String::from_utf8_lossy(&out).into_owned()),
-                Err(e) => Err(ergopath::Error::Usage(format!(
-                    "cannot render the manual: {e}"
-                ))),
-            }
-        }
+        Command::Man => manual(),
+        Command::Reference => Ok(ergopath::commands::MODEL_FORMAT.to_string()),
         Command::Check { model } => commands::check(model),
         Command::Steady {
             model,

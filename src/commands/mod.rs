@@ -10,6 +10,10 @@ use crate::steady::{SolveError, SteadySettings};
 use crate::units::GivenRate;
 use std::path::Path;
 
+/// The complete model-file and JSON reference, printed by `ergopath reference` (the same text
+/// as `docs/model-format.md`, compiled in so that it matches this build).
+pub const MODEL_FORMAT: &str = include_str!("../../docs/model-format.md");
+
 pub mod files;
 mod precision;
 mod search;

@@ -47,6 +47,8 @@ fn every_command_shows_an_example_and_completions_and_manual_render() {
         "bench",
         "completions",
         "man",
+        "reference",
+        "simulate",
     ] {
         let out = run_in(&root(), &[command, "--help"]);
         let help = String::from_utf8_lossy(&out.stdout);
@@ -58,7 +60,32 @@ fn every_command_shows_an_example_and_completions_and_manual_render() {
     let bash = run_in(&root(), &["completions", "bash"]);
     assert!(String::from_utf8_lossy(&bash.stdout).contains("ergopath"));
     let man = run_in(&root(), &["man"]);
-    assert!(String::from_utf8_lossy(&man.stdout).contains(".TH ergopath"));
+    let man = String::from_utf8_lossy(&man.stdout);
+    assert!(man.contains(".TH ergopath 1"));
+    // One page per subcommand.
+    for page in [
+        "check",
+        "steady",
+        "bound",
+        "design",
+        "sweep",
+        "compare",
+        "regimes",
+        "reference",
+    ] {
+        assert!(
+            man.contains(&format!(".TH ergopath-{page} 1")),
+            "no page for {page}"
+        );
+    }
+    // `reference` prints the repository's model-format page, every key of it.
+    let reference = run_in(&root(), &["reference"]);
+    assert!(reference.status.success());
+    let page = std::fs::read_to_string(root().join("docs/model-format.md")).unwrap();
+    assert_eq!(
+        String::from_utf8_lossy(&reference.stdout).trim_end(),
+        page.trim_end()
+    );
 }
 
 #[test]

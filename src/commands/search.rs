@@ -889,6 +889,9 @@ struct SweepDone {
     evaluated: u64,
     /// The capped relaxation when it was solved to full accuracy.
     relaxation: Option<f64>,
+    /// Why `relaxation` is missing.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    relaxation_gap: Option<search::RelaxationGap>,
 }
 
 /// A sweep's checkpoint: what identifies the sweep, and its finished points in order.
@@ -1142,7 +1145,10 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         if let Some(b) = &best {
             best_so_far = Some(b.clone());
         }
-        let relaxation = searcher.relaxation_all();
+        let (relaxation, relaxation_gap) = match searcher.relaxation_all_checked() {
+            Ok(r) => (Some(r), None),
+            Err(gap) => (None, Some(gap)),
+        };
         bar.advance(
             outcome.evaluated,
             best.as_ref().map_or(f64::NAN, |b| b.power),
@@ -1152,7 +1158,8 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
             best,
             carried,
             evaluated: outcome.evaluated,
-            relaxation: relaxation.is_finite().then_some(relaxation),
+            relaxation,
+            relaxation_gap,
         });
         new_points += 1;
         if let Some(file) = &request.checkpoint {
@@ -1170,7 +1177,12 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
                 d.best.as_ref(),
                 d.carried,
                 d.evaluated,
-                d.relaxation.unwrap_or(f64::INFINITY),
+                d.relaxation.ok_or_else(|| {
+                    d.relaxation_gap.as_ref().map_or_else(
+                        || "not recorded".to_string(),
+                        search::RelaxationGap::to_string,
+                    )
+                }),
             )
         })
         .collect();

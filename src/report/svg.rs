@@ -205,7 +205,14 @@ impl Chart {
             TOP + ph / 2.0,
             escape(&self.y_label)
         );
-        for (k, s) in self.series.iter().enumerate() {
+        // Only series with a point to draw get a line and a legend entry: a legend never names
+        // a line that is not drawn (each keeps its colour, so charts stay comparable).
+        let drawn = self
+            .series
+            .iter()
+            .enumerate()
+            .filter(|(_, s)| s.points.iter().any(usable));
+        for (slot, (k, s)) in drawn.enumerate() {
             let colour = COLOURS[k % COLOURS.len()];
             let points: Vec<String> = s
                 .points
@@ -236,7 +243,7 @@ impl Chart {
                 }
             }
             // Legend entry: a line sample for joined series, a dot otherwise.
-            let (ly, kx) = (TOP + 14.0 + 20.0 * k as f64, LEFT + pw + 12.0);
+            let (ly, kx) = (TOP + 14.0 + 20.0 * slot as f64, LEFT + pw + 12.0);
             if s.joined {
                 let _ = writeln!(
                     svg,

@@ -28,6 +28,9 @@ pub struct SweepPoint {
     /// Capped convex relaxation over all candidate pairs: no design within the budget exceeds
     /// it, whatever the number of pathways.
     pub relaxation: Option<f64>,
+    /// Why `relaxation` is missing.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub relaxation_missing: Option<String>,
     /// Fluctuations of the work current with the best design (methods, section 12).
     pub precision: Option<PrecisionJson>,
 }
@@ -40,7 +43,7 @@ impl SweepPoint {
         best: Option<&Found>,
         carried_over: bool,
         evaluated: u64,
-        relaxation: f64,
+        relaxation: Result<f64, String>,
     ) -> Self {
         let u = &model.units;
         let power = best.map(|f| f.verified.map_or(f.power, |v| v.0));
@@ -59,7 +62,8 @@ impl SweepPoint {
             }),
             evaluated,
             carried_over,
-            relaxation: relaxation.is_finite().then(|| u.from_kt(relaxation)),
+            relaxation: relaxation.as_ref().ok().map(|r| u.from_kt(*r)),
+            relaxation_missing: relaxation.err(),
             precision: None,
         }
     }
@@ -80,6 +84,26 @@ pub struct SweepReport {
 }
 
 impl SweepReport {
+    /// Why an upper bound at a budget is missing ('-'), one line per reason with its values.
+    fn missing_relaxations(&self) -> String {
+        let mut reasons: Vec<(&str, Vec<String>)> = Vec::new();
+        for pt in &self.points {
+            if let Some(why) = pt.relaxation_missing.as_deref() {
+                match reasons.iter_mut().find(|(r, _)| *r == why) {
+                    Some((_, values)) => values.push(num(pt.value)),
+                    None => reasons.push((why, vec![num(pt.value)])),
+                }
+            }
+        }
+        reasons
+            .iter()
+            .map(|(why, values)| {
+                let line = format!("'-' (no upper bound) at {}: {why}.", values.join(", "));
+                format!("\n{}", wrap(&line, "  ", 78))
+            })
+            .collect()
+    }
+
     pub fn new(
         model: &Model,
         bound: &Bound,
@@ -155,13 +179,14 @@ impl SweepReport {
         }
         out.push_str(&table.render());
         out.push_str(&wrap("The upper bound at each budget is the rate-capped convex relaxation over all candidate pairs (work and pathway-count limits dropped); (carried) marks a design kept from a tighter budget because the search found nothing better.", "  ", 78));
+        out.push_str(&self.missing_relaxations());
         out.push('\n');
         out
     }
 
     pub fn csv(&self) -> String {
         let mut out = format!(
-            "{},best_power,fraction_of_headroom,relaxation,evaluated,carried_over,pathways\n",
+            "{},best_power,fraction_of_headroom,relaxation,evaluated,carried_over,pathways,relaxation_missing\n",
             self.over.replace('-', "_")
         );
         let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
@@ -172,14 +197,15 @@ impl SweepReport {
                 .map(|w| format!("{}/{}", w.from, w.to))
                 .collect();
             out.push_str(&format!(
-                "{},{},{},{},{},{},{}\n",
+                "{},{},{},{},{},{},{},{}\n",
                 pt.value,
                 opt(pt.best_power),
                 opt(pt.fraction_of_headroom),
                 opt(pt.relaxation),
                 pt.evaluated,
                 pt.carried_over,
-                super::csv_field(&names.join(" "))
+                super::csv_field(&names.join(" ")),
+                super::csv_field(pt.relaxation_missing.as_deref().unwrap_or(""))
             ));
         }
         out

@@ -286,6 +286,18 @@ fn subtree_size(rest: usize, depth: usize) -> u64 {
     (0..=depth).map(|j| binomial(rest, j)).sum::<f64>().round() as u64
 }
 
+/// Why the rate-capped convex relaxation gave no upper bound (an outcome, not a failure: the
+/// search then prunes nothing on its word).
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, thiserror::Error)]
+pub enum RelaxationGap {
+    #[error("{0}")]
+    SolverFailed(String),
+    #[error("the conic solver stopped short of full accuracy (answers short of it were measured 3e-5 off)")]
+    NotFullyAccurate,
+    #[error("the conic solution gave a non-finite value")]
+    NotFinite,
+}
+
 /// A ranking of at most `top` designs.
 struct Ranking {
     top: usize,
@@ -577,6 +589,11 @@ impl<'a> Searcher<'a> {
     /// optimum. `None` if the program fails or stops short of full accuracy, so that nothing is
     /// pruned on its word.
     fn relaxation(&self, set: &[usize]) -> Option<Relaxed> {
+        self.relaxation_checked(set).ok()
+    }
+
+    /// [`Self::relaxation`], saying why it is missing.
+    fn relaxation_checked(&self, set: &[usize]) -> Result<Relaxed, RelaxationGap> {
         let cap = self.settings.budget.relaxed_cap().unwrap_or(f64::INFINITY);
         // Copies of a blind pathway get their own rates here: a relaxation of the shared ones.
         let list: Vec<Candidate> = set
@@ -584,8 +601,9 @@ impl<'a> Searcher<'a> {
             .flat_map(|&i| &self.candidates[i])
             .map(|&(a, b)| Candidate { a, b })
             .collect();
-        let s = conic::capped(&self.objective, &list, cap, conic::TIGHT).ok()?;
-        let dual_bound = s.dual_bound?;
+        let s = conic::capped(&self.objective, &list, cap, conic::TIGHT)
+            .map_err(|e| RelaxationGap::SolverFailed(e.to_string()))?;
+        let dual_bound = s.dual_bound.ok_or(RelaxationGap::NotFullyAccurate)?;
         let log_p: Vec<f64> = s.p.iter().map(|x| x.max(1e-300).ln()).collect();
         let mut value = self.objective.value(&s.p, &log_p);
         for (f, g) in s.forward_flux.iter().zip(&s.backward_flux) {
@@ -619,7 +637,10 @@ impl<'a> Searcher<'a> {
                 ((f / copies as f64).exp(), (g / copies as f64).exp())
             })
             .collect();
-        value.is_finite().then_some(Relaxed {
+        if !value.is_finite() {
+            return Err(RelaxationGap::NotFinite);
+        }
+        Ok(Relaxed {
             upper: value + margin,
             rates,
         })
@@ -644,6 +665,12 @@ impl<'a> Searcher<'a> {
     pub fn relaxation_all(&self) -> f64 {
         let all: Vec<usize> = (0..self.candidates.len()).collect();
         self.upper(&all)
+    }
+
+    /// The capped relaxation over every candidate pair, or why there is none.
+    pub fn relaxation_all_checked(&self) -> Result<f64, RelaxationGap> {
+        let all: Vec<usize> = (0..self.candidates.len()).collect();
+        self.relaxation_checked(&all).map(|r| r.upper)
     }
 
     /// Runs the search (or one shard of it) and returns its part, designs verified.

@@ -636,3 +636,69 @@ fn extreme_budgets_end_promptly_and_say_what_they_did() {
     // all, since neither pathway of a pair adds anything (methods, section 5).
     assert_eq!(v["undetermined_designs"].as_u64(), Some(3));
 }
+
+#[test]
+fn a_missing_upper_bound_in_a_sweep_says_why_and_is_not_drawn() {
+    // The photoswitch's capped relaxation is refused by the conic solver (Clarabel stops with
+    // InsufficientProgress); the walker's is solved. Each '-' carries its reason in the text,
+    // the JSON and the CSV, and the chart's legend names only lines it draws.
+    for (model, relaxed) in [
+        ("problems/photoswitch.toml", false),
+        ("problems/walker.toml", true),
+    ] {
+        let dir = scratch("sweep-missing");
+        let args = [
+            "sweep",
+            model,
+            "--over",
+            "rate-cap=10..1000",
+            "--points",
+            "2",
+            "-q",
+        ];
+        let v = crate::common::run_json(&[&args[..], &["--json"]].concat());
+        for p in v["points"].as_array().unwrap() {
+            assert_eq!(p["relaxation"].is_number(), relaxed, "{model}: {p}");
+            assert_eq!(
+                p["relaxation_missing"].is_string(),
+                !relaxed,
+                "{model}: {p}"
+            );
+        }
+        let absolute = root().join(model);
+        let mut saving = args.to_vec();
+        saving[1] = absolute.to_str().unwrap();
+        saving.push("--save");
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
+            .args(&saving)
+            .current_dir(&dir)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let name = std::path::Path::new(model)
+            .file_stem()
+            .unwrap()
+            .to_str()
+            .unwrap();
+        let folder = dir.join("results").join(name);
+        let text = std::fs::read_to_string(folder.join("sweep-rate-cap.txt")).unwrap();
+        assert_eq!(
+            text.contains("'-' (no upper bound) at 10.000, 1000.0:"),
+            !relaxed,
+            "{text}"
+        );
+        let csv = std::fs::read_to_string(folder.join("sweep-rate-cap.csv")).unwrap();
+        let last_column: Vec<&str> = csv
+            .lines()
+            .skip(1)
+            .map(|l| l.rsplit(',').next().unwrap())
+            .collect();
+        assert!(last_column.iter().all(|c| c.is_empty() == relaxed), "{csv}");
+        let svg = std::fs::read_to_string(folder.join("sweep-rate-cap.svg")).unwrap();
+        assert_eq!(svg.contains(">upper bound at budget<"), relaxed, "{model}");
+    }
+}

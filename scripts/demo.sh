@@ -13,6 +13,7 @@ $bin design problems/flicker.toml --blind --quiet > results/flicker/design-blind
 for model in problems/*.toml; do
   $bin steady "$model" --save > /dev/null
   $bin bound "$model" --save > /dev/null
+  $bin sensitivity "$model" --save > /dev/null
   $bin design "$model" --save --quiet > /dev/null
   $bin sweep "$model" --over rate-cap=1..1e6 --points 13 --save --quiet > /dev/null
   echo "results/$(basename "$model" .toml)/ regenerated"

@@ -16,6 +16,7 @@ pub mod progress;
 pub mod report;
 pub mod rng;
 pub mod search;
+pub mod sensitivity;
 pub mod steady;
 pub mod units;
 

@@ -58,6 +58,16 @@ enum Command {
         #[command(flatten)]
         save: SaveFlag,
     },
+    /// Which parameter limits the bound: derivatives of baseline power and bound, ranked by headroom
+    #[command(after_help = "Example:\n  ergopath sensitivity problems/walker.toml --csv")]
+    Sensitivity {
+        /// Model file (TOML)
+        model: PathBuf,
+        #[command(flatten)]
+        format: FormatFlags,
+        #[command(flatten)]
+        save: SaveFlag,
+    },
     /// Universal bound on harvesting power under added pathways, with a design that attains it
     #[command(
         after_help = "Examples:\n  ergopath bound problems/ring6.toml\n  ergopath bound problems/walker.toml --pairs empty/stepped,fuel_bound/hydrolysed --rate-cap 1000 --json"
@@ -439,6 +449,11 @@ fn main() -> ExitCode {
             format,
             save,
         } => commands::steady(model, format.format(), save.root().as_deref()),
+        Command::Sensitivity {
+            model,
+            format,
+            save,
+        } => commands::sensitivity(model, format.format(), save.root().as_deref()),
         Command::Bound {
             model,
             pairs,

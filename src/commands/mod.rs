@@ -226,6 +226,26 @@ pub fn steady(path: &Path, format: Format, save_root: Option<&Path>) -> Result<S
     emit(&model, "steady", format, save_root, rendered)
 }
 
+/// `ergopath sensitivity`: derivatives of the baseline power and of the universal bound with
+/// respect to every parameter, ranked by their effect on the headroom.
+pub fn sensitivity(path: &Path, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
+    let model = Model::load(path)?;
+    let bound = crate::bound::solve(
+        &model.network,
+        &PairSelection::All,
+        &crate::bound::BoundSettings::default(),
+    )?;
+    let sensitivities = crate::sensitivity::analyse(&model, &bound)?;
+    let report = crate::report::sensitivity::SensitivityReport::new(&model, &bound, &sensitivities);
+    let rendered = Rendered {
+        text: report.text(),
+        json: to_json(&report)?,
+        csv: Some(report.csv()),
+        svg: Some(report.svg()),
+    };
+    emit(&model, "sensitivity", format, save_root, rendered)
+}
+
 /// What `ergopath bench` times.
 #[derive(Debug, Clone)]
 pub struct BenchRequest {

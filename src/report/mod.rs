@@ -14,6 +14,7 @@ pub mod design;
 pub mod output;
 pub mod precision;
 pub mod regimes;
+pub mod sensitivity;
 pub mod steady;
 pub mod summary;
 pub mod svg;

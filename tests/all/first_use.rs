@@ -49,6 +49,7 @@ fn every_command_shows_an_example_and_completions_and_manual_render() {
         "man",
         "reference",
         "simulate",
+        "sensitivity",
     ] {
         let out = run_in(&root(), &[command, "--help"]);
         let help = String::from_utf8_lossy(&out.stdout);

@@ -19,4 +19,5 @@ mod reference;
 mod regimes;
 mod resume;
 mod safe_files;
+mod sensitivity;
 mod steady_numerics;

@@ -1,0 +1,199 @@
+//! The `sensitivity` report: which parameter limits the bound and the baseline power, ranked by
+//! its effect on the headroom; as text, JSON, CSV and a bar chart. Presentation only: the
+//! derivatives come from [`crate::sensitivity`].
+
+use super::table::{bounded, num, Align, Table};
+use super::{transition_name, UnitsJson};
+use crate::bound::Bound;
+use crate::model::Model;
+use crate::sensitivity::{Derivative, ParameterKind, Sensitivity};
+use serde::Serialize;
+
+/// One parameter's derivatives in the model's units: powers in the model's power unit, per unit
+/// of the parameter (per e-fold for rates, per energy unit for energies and labels, per kelvin
+/// for the temperature). `*_error` is the Richardson estimate of each derivative's error.
+#[derive(Debug, Clone, Serialize)]
+pub struct ParameterJson {
+    pub kind: ParameterKind,
+    pub name: String,
+    pub d_power: f64,
+    pub d_power_error: f64,
+    pub d_bound: f64,
+    pub d_bound_error: f64,
+    pub d_headroom: f64,
+    /// Change of the headroom per natural step of the parameter (one e-fold of a rate, 1 kT of
+    /// an energy or label, 1 K): the ranking key, comparable across kinds.
+    pub headroom_per_step: f64,
+    /// `d ln P / d ln x` (for rates `d ln P / d ln k`); null where the value or the parameter
+    /// is zero.
+    pub power_elasticity: Option<f64>,
+    pub bound_elasticity: Option<f64>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct SensitivityReport {
+    pub title: String,
+    pub units: UnitsJson,
+    pub baseline_power: f64,
+    pub bound: f64,
+    /// Ranked by `|d_headroom|` in natural steps (one e-fold of a rate, 1 kT of an energy or a
+    /// label, 1 K), largest first.
+    pub parameters: Vec<ParameterJson>,
+}
+
+/// Parameter value in the model's units (`None` for rates, whose elasticity is per `ln k`).
+fn parameter_value(model: &Model, kind: ParameterKind, index: usize) -> Option<f64> {
+    let (net, u) = (&model.network, &model.units);
+    match kind {
+        ParameterKind::Rate => None,
+        ParameterKind::Energy => Some(u.from_kt(net.energies[index])),
+        ParameterKind::Work => Some(u.from_kt(net.channels[index].work)),
+        ParameterKind::Drive => Some(u.from_kt(net.channels[index].drive)),
+        ParameterKind::Temperature => Some(u.temperature),
+    }
+}
+
+impl SensitivityReport {
+    pub fn new(model: &Model, bound: &Bound, sensitivities: &[Sensitivity]) -> Self {
+        let u = &model.units;
+        // Internal derivatives are per kT of energy-like parameters; per model energy unit a
+        // derivative is that times kT per unit.
+        let per_unit = |kind: ParameterKind| match kind {
+            ParameterKind::Energy | ParameterKind::Work | ParameterKind::Drive => u.kt_per_unit(),
+            _ => 1.0,
+        };
+        let natural_step = |kind: ParameterKind| match kind {
+            ParameterKind::Energy | ParameterKind::Work | ParameterKind::Drive => {
+                1.0 / u.kt_per_unit()
+            }
+            _ => 1.0,
+        };
+        let elasticity = |d: f64, value: f64, x: Option<f64>| -> Option<f64> {
+            let scale = x.unwrap_or(1.0);
+            (value != 0.0 && scale != 0.0).then(|| d * scale / value)
+        };
+        let (power, upper) = (u.from_kt(bound.baseline_power), u.from_kt(bound.power));
+        let mut parameters: Vec<(f64, ParameterJson)> = sensitivities
+            .iter()
+            .map(|s| {
+                let (kind, index) = (s.parameter.kind, s.parameter.index);
+                let k = per_unit(kind);
+                let convert = |d: &Derivative| (u.from_kt(d.value) * k, u.from_kt(d.error) * k);
+                let ((dp, ep), (db, eb)) = (convert(&s.d_power), convert(&s.d_bound));
+                let x = parameter_value(model, kind, index);
+                let json = ParameterJson {
+                    kind,
+                    name: parameter_name(model, kind, index),
+                    d_power: dp,
+                    d_power_error: ep,
+                    d_bound: db,
+                    d_bound_error: eb,
+                    d_headroom: db - dp,
+                    headroom_per_step: (db - dp) * natural_step(kind),
+                    power_elasticity: elasticity(dp, power, x),
+                    bound_elasticity: elasticity(db, upper, x),
+                };
+                ((db - dp).abs() * natural_step(kind), json)
+            })
+            .collect();
+        parameters.sort_by(|a, b| b.0.total_cmp(&a.0));
+        Self {
+            title: model.title.clone(),
+            units: UnitsJson::of(model),
+            baseline_power: power,
+            bound: upper,
+            parameters: parameters.into_iter().map(|(_, p)| p).collect(),
+        }
+    }
+
+    pub fn text(&self) -> String {
+        let (p, e) = (&self.units.power, &self.units.energy);
+        let mut out = format!(
+            "Sensitivities of {}\n  baseline power {} {p}, universal bound {} {p}\n  derivatives in {p} per e-fold of a rate (forward and backward together), per {e} of\n  an energy or label, per kelvin; ranked by the change of the headroom per e-fold of a rate,\n  per kT of an energy or label, per kelvin\n\n",
+            self.title,
+            num(self.baseline_power),
+            num(self.bound)
+        );
+        let mut table = Table::new(&[
+            ("parameter", Align::Left),
+            ("d bound", Align::Right),
+            ("d power", Align::Right),
+            ("d headroom", Align::Right),
+            ("per e-fold/kT/K", Align::Right),
+            ("elasticity of bound", Align::Right),
+        ]);
+        for q in &self.parameters {
+            table.row(vec![
+                q.name.clone(),
+                bounded(q.d_bound, q.d_bound_error),
+                bounded(q.d_power, q.d_power_error),
+                num(q.d_headroom),
+                num(q.headroom_per_step),
+                q.bound_elasticity.map_or("-".into(), num),
+            ]);
+        }
+        out.push_str(&table.render());
+        out.push_str(&super::table::wrap("The bound's derivative is the envelope theorem's: the derivative of Phi at the certified optimum held fixed (methods, section 10); each derivative is a Richardson central difference whose estimated error is shown where it exceeds 1%. Derivatives are local: a factor of 2 to 10 in a rate is not a small change, and a real design needs experimental validation.", "  ", 78));
+        out.push('\n');
+        out
+    }
+
+    pub fn csv(&self) -> String {
+        let p = &self.units.power;
+        let mut out = format!("kind,name,d_power [{p}],d_power_error,d_bound [{p}],d_bound_error,d_headroom [{p}],power_elasticity,bound_elasticity\n");
+        let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
+        for q in &self.parameters {
+            out.push_str(&format!(
+                "{},{},{},{},{},{},{},{},{}\n",
+                serde_json::to_value(q.kind)
+                    .ok()
+                    .and_then(|v| v.as_str().map(str::to_string))
+                    .unwrap_or_default(),
+                super::csv_field(&q.name),
+                q.d_power,
+                q.d_power_error,
+                q.d_bound,
+                q.d_bound_error,
+                q.d_headroom,
+                opt(q.power_elasticity),
+                opt(q.bound_elasticity)
+            ));
+        }
+        out
+    }
+
+    /// The twelve parameters with the largest effect, as bars of their bound and power
+    /// derivatives.
+    pub fn svg(&self) -> String {
+        let top: Vec<&ParameterJson> = self.parameters.iter().take(12).collect();
+        super::svg::Bars {
+            title: format!("What limits the bound: {}", self.title),
+            value_label: format!(
+                "derivative ({} per e-fold, per {}, per K)",
+                self.units.power, self.units.energy
+            ),
+            categories: top.iter().map(|q| q.name.clone()).collect(),
+            series: vec![
+                (
+                    "bound".into(),
+                    top.iter().map(|q| Some(q.d_bound)).collect(),
+                ),
+                (
+                    "baseline power".into(),
+                    top.iter().map(|q| Some(q.d_power)).collect(),
+                ),
+            ],
+        }
+        .render()
+    }
+}
+
+fn parameter_name(model: &Model, kind: ParameterKind, index: usize) -> String {
+    match kind {
+        ParameterKind::Rate => format!("rate of {}", transition_name(model, index)),
+        ParameterKind::Energy => format!("energy of {}", model.state_names[index]),
+        ParameterKind::Work => format!("work of {}", transition_name(model, index)),
+        ParameterKind::Drive => format!("drive of {}", transition_name(model, index)),
+        ParameterKind::Temperature => "temperature".into(),
+    }
+}

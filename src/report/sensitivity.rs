@@ -39,6 +39,8 @@ pub struct SensitivityReport {
     /// Ranked by `|d_headroom|` in natural steps (one e-fold of a rate, 1 kT of an energy or a
     /// label, 1 K), largest first.
     pub parameters: Vec<ParameterJson>,
+    /// The model has environments: parameters are those of the joint chain, one per copy.
+    pub joint_chain: bool,
 }
 
 /// Parameter value in the model's units (`None` for rates, whose elasticity is per `ln k`).
@@ -103,6 +105,7 @@ impl SensitivityReport {
             baseline_power: power,
             bound: upper,
             parameters: parameters.into_iter().map(|(_, p)| p).collect(),
+            joint_chain: model.environments.is_some(),
         }
     }
 
@@ -133,6 +136,10 @@ impl SensitivityReport {
             ]);
         }
         out.push_str(&table.render());
+        if self.joint_chain {
+            out.push_str(&super::table::wrap("This model has environments: each parameter is one copy in the joint chain (state@environment), moved alone; a physical parameter shared by all copies moves them together, the sum of their derivatives.", "  ", 78));
+            out.push('\n');
+        }
         out.push_str(&super::table::wrap("The bound's derivative is the envelope theorem's: the derivative of Phi at the certified optimum held fixed (methods, section 10); each derivative is a Richardson central difference whose estimated error is shown where it exceeds 1%. Derivatives are local: a factor of 2 to 10 in a rate is not a small change, and a real design needs experimental validation.", "  ", 78));
         out.push('\n');
         out

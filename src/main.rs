@@ -144,7 +144,7 @@ enum Command {
         #[arg(long, value_name = "S", default_value_t = 1)]
         seed: u64,
         /// No progress bar
-        #[arg(long)]
+        #[arg(long, short)]
         quiet: bool,
         /// Print one JSON object (every key: `ergopath reference`, or docs/model-format.md)
         #[arg(long)]

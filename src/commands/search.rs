@@ -1145,7 +1145,7 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         if let Some(b) = &best {
             best_so_far = Some(b.clone());
         }
-        let (relaxation, relaxation_gap) = match searcher.relaxation_all_checked() {
+        let (relaxation, relaxation_gap) = match searcher.relaxation_all() {
             Ok(r) => (Some(r), None),
             Err(gap) => (None, Some(gap)),
         };

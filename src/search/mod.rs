@@ -661,14 +661,8 @@ impl<'a> Searcher<'a> {
     }
 
     /// Upper bound on every design within the budget on any of the candidate pairs, whatever
-    /// the number of pathways: the capped relaxation over all candidates.
-    pub fn relaxation_all(&self) -> f64 {
-        let all: Vec<usize> = (0..self.candidates.len()).collect();
-        self.upper(&all)
-    }
-
-    /// The capped relaxation over every candidate pair, or why there is none.
-    pub fn relaxation_all_checked(&self) -> Result<f64, RelaxationGap> {
+    /// the number of pathways (the capped relaxation over all candidates), or why there is none.
+    pub fn relaxation_all(&self) -> Result<f64, RelaxationGap> {
         let all: Vec<usize> = (0..self.candidates.len()).collect();
         self.relaxation_checked(&all).map(|r| r.upper)
     }

@@ -610,21 +610,7 @@ fn attaining_pathways_are_written_along_their_net_flux() {
         let a = design::attaining(net, &b, &PairSelection::All, 0.99, &[0.5]).unwrap();
         let d = a.design.expect("headroom");
         let joint = net.with_channels(&d.pathways.iter().map(Pathway::channel).collect::<Vec<_>>());
-        let n = joint.len();
-        // Generator with the last row replaced by the normalisation sum p = 1.
-        let mut m = nalgebra::DMatrix::<f64>::zeros(n, n);
-        for c in &joint.channels {
-            m[(c.to, c.from)] += c.forward;
-            m[(c.from, c.from)] -= c.forward;
-            m[(c.from, c.to)] += c.backward;
-            m[(c.to, c.to)] -= c.backward;
-        }
-        for j in 0..n {
-            m[(n - 1, j)] = 1.0;
-        }
-        let mut rhs = nalgebra::DVector::<f64>::zeros(n);
-        rhs[n - 1] = 1.0;
-        let p = m.lu().solve(&rhs).unwrap();
+        let p = crate::common::dense_stationary(&joint);
         for pw in &d.pathways {
             let flux = pw.forward * p[pw.from] - pw.backward * p[pw.to];
             assert!(flux >= 0.0, "{path}: {pw:?} carries {flux}");

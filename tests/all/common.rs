@@ -17,6 +17,40 @@ pub fn parse(text: &str) -> Model {
     Model::parse(text, Path::new("inline.toml")).unwrap_or_else(|e| panic!("{e}"))
 }
 
+/// Runs the `ergopath` binary with `args` from `dir` (where `--save` writes `results/`).
+pub fn run_in(dir: &Path, args: &[&str]) -> Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap()
+}
+
+/// Stationary distribution of `net` by a dense nalgebra LU solve of the generator with its last
+/// row replaced by the normalisation `sum p = 1`: an independent reference that shares no code
+/// with the tool's GTH and sparse solvers.
+pub fn dense_stationary(net: &Network) -> Vec<f64> {
+    let n = net.len();
+    let mut m = nalgebra::DMatrix::<f64>::zeros(n, n);
+    for c in &net.channels {
+        m[(c.to, c.from)] += c.forward;
+        m[(c.from, c.from)] -= c.forward;
+        m[(c.from, c.to)] += c.backward;
+        m[(c.to, c.to)] -= c.backward;
+    }
+    for j in 0..n {
+        m[(n - 1, j)] = 1.0;
+    }
+    let mut rhs = nalgebra::DVector::<f64>::zeros(n);
+    rhs[n - 1] = 1.0;
+    m.lu()
+        .solve(&rhs)
+        .expect("irreducible")
+        .iter()
+        .copied()
+        .collect()
+}
+
 /// Runs the `ergopath` binary with `args` from the repository root.
 pub fn run(args: &[&str]) -> Output {
     std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))

@@ -5,39 +5,29 @@
 //! that shares no code with the tool's L-BFGS and adjoint gradients.
 
 use crate::common::{close, load, root, run, scratch};
-use ergopath::model::{Model, Network};
-use nalgebra::{DMatrix, DVector};
+use ergopath::model::{Channel, Model, Network};
 use serde_json::Value;
 
 /// Total harvesting power of `net` plus added pathways `(a, b, q+, q-)`, each storing
 /// `E_a - E_b - ln(q+/q-)` kT per forward jump (methods, section 2), from a dense LU solve
 /// of `L p = 0` with the last equation replaced by `sum p = 1`.
 fn power(net: &Network, added: &[(usize, usize, f64, f64)]) -> f64 {
-    let n = net.len();
-    let mut l = DMatrix::<f64>::zeros(n, n);
-    let mut jumps: Vec<(usize, usize, f64, f64, f64)> = net
+    let mut joint = net.clone();
+    for &(a, b, f, g) in added {
+        joint.channels.push(Channel {
+            from: a,
+            to: b,
+            forward: f,
+            backward: g,
+            work: net.energies[a] - net.energies[b] - (f / g).ln(),
+            drive: 0.0,
+        });
+    }
+    let p = crate::common::dense_stationary(&joint);
+    joint
         .channels
         .iter()
-        .map(|c| (c.from, c.to, c.forward, c.backward, c.work))
-        .collect();
-    for &(a, b, f, g) in added {
-        jumps.push((a, b, f, g, net.energies[a] - net.energies[b] - (f / g).ln()));
-    }
-    for &(a, b, f, g, _) in &jumps {
-        l[(b, a)] += f;
-        l[(a, a)] -= f;
-        l[(a, b)] += g;
-        l[(b, b)] -= g;
-    }
-    for j in 0..n {
-        l[(n - 1, j)] = 1.0;
-    }
-    let mut rhs = DVector::<f64>::zeros(n);
-    rhs[n - 1] = 1.0;
-    let p = l.lu().solve(&rhs).expect("irreducible");
-    jumps
-        .iter()
-        .map(|&(a, b, f, g, w)| w * (f * p[a] - g * p[b]))
+        .map(|c| c.work * (c.forward * p[c.from] - c.backward * p[c.to]))
         .sum()
 }
 
@@ -359,11 +349,10 @@ fn shards_merged_equal_one_run_byte_for_byte() {
     let mut parts = Vec::new();
     for i in 0..3 {
         let shard = format!("{i}/3");
-        let out = std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
-            .args([&["design", model, "--shard", &shard, "--save"][..], &common].concat())
-            .current_dir(&dir)
-            .output()
-            .unwrap();
+        let out = crate::common::run_in(
+            &dir,
+            &[&["design", model, "--shard", &shard, "--save"][..], &common].concat(),
+        );
         assert!(
             out.status.success(),
             "{}",
@@ -669,11 +658,7 @@ fn a_missing_upper_bound_in_a_sweep_says_why_and_is_not_drawn() {
         let mut saving = args.to_vec();
         saving[1] = absolute.to_str().unwrap();
         saving.push("--save");
-        let out = std::process::Command::new(env!("CARGO_BIN_EXE_ergopath"))
-            .args(&saving)
-            .current_dir(&dir)
-            .output()
-            .unwrap();
+        let out = crate::common::run_in(&dir, &saving);
         assert!(
             out.status.success(),
             "{}",

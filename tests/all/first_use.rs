@@ -1,16 +1,7 @@
 //! A newcomer's path: the model template, help with examples, completions and the manual, and
 //! the results report written beside saved outputs.
 
-use crate::common::{root, scratch};
-use std::process::Command;
-
-fn run_in(dir: &std::path::Path, args: &[&str]) -> std::process::Output {
-    Command::new(env!("CARGO_BIN_EXE_ergopath"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .unwrap()
-}
+use crate::common::{root, run_in, scratch};
 
 #[test]
 fn template_is_a_valid_model_and_is_never_overwritten() {

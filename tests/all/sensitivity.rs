@@ -9,24 +9,10 @@ use crate::common::load;
 use ergopath::bound::{self, BoundSettings};
 use ergopath::model::{Network, PairSelection};
 use ergopath::sensitivity::{analyse, perturbed, ParameterKind};
-use nalgebra::{DMatrix, DVector};
 
 /// Harvesting power (kT per time unit) of `net` by a dense LU solve.
 fn power(net: &Network) -> f64 {
-    let n = net.len();
-    let mut l = DMatrix::<f64>::zeros(n, n);
-    for c in &net.channels {
-        l[(c.to, c.from)] += c.forward;
-        l[(c.from, c.from)] -= c.forward;
-        l[(c.from, c.to)] += c.backward;
-        l[(c.to, c.to)] -= c.backward;
-    }
-    for j in 0..n {
-        l[(n - 1, j)] = 1.0;
-    }
-    let mut rhs = DVector::<f64>::zeros(n);
-    rhs[n - 1] = 1.0;
-    let p = l.lu().solve(&rhs).unwrap();
+    let p = crate::common::dense_stationary(net);
     net.channels
         .iter()
         .map(|c| c.work * (c.forward * p[c.from] - c.backward * p[c.to]))

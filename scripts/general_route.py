@@ -13,8 +13,12 @@ Usage (from the repository root, in the pinned environment of scripts/requiremen
 Our times come from `ergopath bench` on the identical networks (the SplitMix64 generator and
 the construction of src/bench.rs are re-implemented below, bit for bit). The 200-state row also
 times the bound end to end from a model file (`ergopath bound FILE --json` against reading the
-file with tomllib, building the problem and solving it with cvxpy). Writes
-results/bench/general.csv.
+file with tomllib, building the problem and solving it with cvxpy). When the Python package
+is installed (`pip install .`), the 200-state row also times `Model.bound()` called from Python
+on a model already in memory (warm: the second and later calls), both the full bound job
+(attaining design, speed table, fluctuations, report) and `Model.certified_bound()` (the bound
+alone), and a loop of 10 000 steady-state solves of a
+10-state model from Python. Writes results/bench/general.csv.
 """
 
 import argparse
@@ -179,6 +183,31 @@ def end_to_end(energies, channels, runs):
     return ours, ours_value, theirs, status, value
 
 
+def python_route(energies, channels, runs):
+    """`Model.bound()` from Python, warm, and the steady-state loop; None without the package."""
+    try:
+        import ergopath
+    except ImportError:
+        return None
+    model = ergopath.Model.from_toml(model_text(energies, channels), "network")
+    model.bound()  # warm: the first call pays for loading the library's pages
+    ours, report = median_seconds(runs, model.bound)
+    lean, value = median_seconds(runs, model.certified_bound)
+    # A 10-state ring with one chord (seeded; every ring step stores 0.2 kT).
+    rng = SplitMix(2034)
+    small_energies = [rng.uniform() for _ in range(10)]
+    small_channels = [(i, (i + 1) % 10, 1 + rng.uniform(), 0.5 + rng.uniform(), 0.2) for i in range(10)]
+    small_channels.append((0, 5, 1.0, 1.0, 0.0))
+    small = ergopath.Model.from_toml(model_text(small_energies, small_channels), "small")
+    loops = []
+    for _ in range(runs):
+        started = time.perf_counter()
+        for _ in range(10_000):
+            small.steady()
+        loops.append(10_000 / (time.perf_counter() - started))
+    return ours, report.to_dict()["bound"]["power"], lean, value.power, statistics.median(loops)
+
+
 def our_timings(steady_sizes, bound_sizes, runs):
     with tempfile.TemporaryDirectory() as tmp:
         subprocess.run([BIN, "bench", "--sizes", ",".join(map(str, steady_sizes or [100])),
@@ -226,6 +255,15 @@ def main():
                 agree = "ok" if value is not None and abs(ov - value) <= 1e-6 * abs(ov) else \
                     f"fails: {status}" if value is None else f"differs: {value} vs ours {ov}"
                 rows.append([family, n, "bound end to end", o, t, o / t, agree])
+                from_python = python_route(energies, channels, args.runs)
+                if from_python is not None:
+                    p, pv, lean, lv, per_second = from_python
+                    for task, seconds, ours_value in [("bound job, Python", p, pv), ("bound alone, Python", lean, lv)]:
+                        agree = "ok" if value is not None and abs(ours_value - value) <= 1e-6 * abs(ours_value) else \
+                            f"fails: {status}" if value is None else f"differs: {value} vs ours {ours_value}"
+                        rows.append([family, n, task, seconds, t, seconds / t, agree])
+                    rows.append([family, 10, "steady loop /s", per_second, float("nan"), float("nan"),
+                                 "10 000 solves from Python"])
     # A family where the general route fails: optima far below the double range.
     for length in [10, 40, 150]:
         energies, channels = side_chain(length)
@@ -238,9 +276,9 @@ def main():
         w = csv.writer(f)
         w.writerow(["family", "states", "task", "ours_seconds", "theirs_seconds", "ratio", "their_outcome"])
         w.writerows(rows)
-    print(f"{'family':14} {'states':>8} {'task':17} {'ours s':>10} {'theirs s':>10} {'ours/theirs':>11}  their outcome")
+    print(f"{'family':14} {'states':>8} {'task':20} {'ours s':>10} {'theirs s':>10} {'ours/theirs':>11}  their outcome")
     for family, n, task, o, t, ratio, outcome in rows:
-        print(f"{family:14} {n:8} {task:17} {o:10.4g} {t:10.4g} {ratio:11.3g}  {outcome}")
+        print(f"{family:14} {n:8} {task:20} {o:10.4g} {t:10.4g} {ratio:11.3g}  {outcome}")
     print(f"written: {out}")
 
 

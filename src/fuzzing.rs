@@ -92,7 +92,7 @@ pub fn file_bytes(data: &[u8], model: &Path, second_part: &Path, dir: &Path) {
             max_pathways: Some(2),
             ..Default::default()
         },
-        knobs,
+        knobs: knobs.clone(),
         checkpoint: Some(file.clone()),
         resume: true,
         stop_after: Some(0),

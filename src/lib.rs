@@ -13,6 +13,8 @@ pub mod linalg;
 pub mod model;
 pub mod numeric;
 pub mod progress;
+#[cfg(feature = "python")]
+mod python;
 pub mod report;
 pub mod rng;
 pub mod search;

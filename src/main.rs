@@ -343,6 +343,7 @@ impl SearchArgs {
             threads: capped_threads(self.threads),
             quiet: self.quiet,
             blind: self.blind,
+            control: Default::default(),
         }
     }
 }
@@ -552,6 +553,7 @@ fn main() -> ExitCode {
                 quiet: *quiet,
                 format: if *json { Format::Json } else { Format::Text },
                 save_root: save.then(|| PathBuf::from("results")),
+                control: Default::default(),
             },
         ),
         Command::Merge {

@@ -17,10 +17,10 @@ pub const MODEL_FORMAT: &str = include_str!("../../docs/model-format.md");
 pub mod files;
 mod precision;
 mod search;
-pub use precision::{simulate, SimulateRequest};
+pub use precision::{simulate, simulate_on, SimulateRequest};
 pub use search::{
-    compare, design, merge, sweep, BudgetFlags, CompareRequest, DesignRequest, SearchKnobs,
-    SweepRequest,
+    compare, compare_models, design, design_on, merge, sweep, sweep_on, BudgetFlags,
+    CompareRequest, DesignRequest, SearchKnobs, SweepRequest,
 };
 
 /// Errors of a command run, by boundary.
@@ -67,6 +67,9 @@ pub enum Format {
     Text,
     Json,
     Csv,
+    /// Every form at once, for library callers: one JSON object with `text`, `json` (the
+    /// report's JSON as a string), `csv` and `svg` (null where the report has none).
+    Forms,
 }
 
 /// `ergopath check`: validate and summarise.
@@ -190,6 +193,12 @@ fn emit_in(
         Format::Text => r.text.clone(),
         Format::Json => r.json.clone(),
         Format::Csv => r.csv.clone().unwrap_or_else(|| r.text.clone()),
+        Format::Forms => to_json(&serde_json::json!({
+            "text": r.text,
+            "json": r.json,
+            "csv": r.csv,
+            "svg": r.svg,
+        }))?,
     };
     let Some(root) = save_root else {
         return Ok(printed);
@@ -212,38 +221,50 @@ fn emit_in(
 
 /// `ergopath steady`: stationary distribution and power budget.
 pub fn steady(path: &Path, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
-    let model = Model::load(path)?;
+    steady_on(&Model::load(path)?, format, save_root)
+}
+
+/// [`steady`] on a model in memory.
+pub fn steady_on(model: &Model, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
     let (state, obs, precision) =
         crate::fluctuation::of_network(&model.network, &SteadySettings::default())?;
     let cycles = crate::model::cycles::listed_cycles(&model.network).unwrap_or_default();
-    let report = SteadyReport::new(&model, &state, &obs, &precision, &cycles);
+    let report = SteadyReport::new(model, &state, &obs, &precision, &cycles);
     let rendered = Rendered {
-        text: report.text(&model),
+        text: report.text(model),
         json: to_json(&report)?,
         csv: Some(report.csv()),
         svg: None,
     };
-    emit(&model, "steady", format, save_root, rendered)
+    emit(model, "steady", format, save_root, rendered)
 }
 
 /// `ergopath sensitivity`: derivatives of the baseline power and of the universal bound with
 /// respect to every parameter, ranked by their effect on the headroom.
 pub fn sensitivity(path: &Path, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
-    let model = Model::load(path)?;
+    sensitivity_on(&Model::load(path)?, format, save_root)
+}
+
+/// [`sensitivity`] on a model in memory.
+pub fn sensitivity_on(
+    model: &Model,
+    format: Format,
+    save_root: Option<&Path>,
+) -> Result<String, Error> {
     let bound = crate::bound::solve(
         &model.network,
         &PairSelection::All,
         &crate::bound::BoundSettings::default(),
     )?;
-    let sensitivities = crate::sensitivity::analyse(&model, &bound)?;
-    let report = crate::report::sensitivity::SensitivityReport::new(&model, &bound, &sensitivities);
+    let sensitivities = crate::sensitivity::analyse(model, &bound)?;
+    let report = crate::report::sensitivity::SensitivityReport::new(model, &bound, &sensitivities);
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
         csv: Some(report.csv()),
         svg: Some(report.svg()),
     };
-    emit(&model, "sensitivity", format, save_root, rendered)
+    emit(model, "sensitivity", format, save_root, rendered)
 }
 
 /// What `ergopath bench` times.
@@ -346,16 +367,20 @@ pub const SPEED_TABLE_FRACTIONS: [f64; 4] = [0.5, 0.9, 0.99, 0.999];
 
 /// `ergopath bound`: certified bound, attaining design, speed table, capped design.
 pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
+    bound_on(&Model::load(path)?, request)
+}
+
+/// [`bound`] on a model in memory.
+pub fn bound_on(model: &Model, request: &BoundRequest) -> Result<String, Error> {
     use crate::bound::{self, design, BoundSettings};
     use crate::report::bound::BoundReport;
-    let model = Model::load(path)?;
     if !(request.target > 0.0 && request.target < 1.0) {
         return Err(Error::Usage(format!(
             "--target {} is not a share of the headroom: give a number between 0 and 1, e.g. 0.99",
             request.target
         )));
     }
-    let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
+    let pairs = resolve_pairs(model, request.pairs.as_deref())?;
     let rate_cap = request
         .rate_cap
         .map(|cap| cap.in_units(&model.units))
@@ -386,7 +411,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
             None => (None, None),
         };
     let mut report = BoundReport::new(
-        &model,
+        model,
         &solved,
         &pairs,
         attaining.design.as_ref(),
@@ -399,7 +424,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
     report.rate_capped_failure = capped_failure
         .map(|(rate_cap, reason)| crate::report::bound::CappedFailure { rate_cap, reason });
     attach_precision(
-        &model,
+        model,
         &mut report,
         attaining.design.as_ref(),
         capped.as_ref(),
@@ -411,7 +436,7 @@ pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {
         svg: report.svg(),
     };
     emit(
-        &model,
+        model,
         "bound",
         request.format,
         request.save_root.as_deref(),
@@ -496,9 +521,13 @@ fn closed_forms_of(
 
 /// `ergopath regimes`: exact headroom beside the closed forms along a scaling of the labels.
 pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
+    regimes_on(&Model::load(path)?, request)
+}
+
+/// [`regimes`] on a model in memory.
+pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Error> {
     use crate::bound::{self, closed_form, BoundSettings};
     use crate::report::regimes::{RegimePoint, RegimesReport};
-    let model = Model::load(path)?;
     let which = scaling_of(&request.scale)?;
     let (from, to, points) = (request.from, request.to, request.points);
     if !(from.is_normal() && from > 0.0 && to > from && to.is_finite()) || points < 2 {
@@ -550,7 +579,7 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
     }
     let report = RegimesReport {
         title: model.title.clone(),
-        units: crate::report::UnitsJson::of(&model),
+        units: crate::report::UnitsJson::of(model),
         scaled: request.scale.trim().to_string(),
         points: rows,
     };
@@ -562,7 +591,7 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
     };
     let name = format!("regimes-{}", report.scaled.replace(',', "-"));
     emit(
-        &model,
+        model,
         &name,
         request.format,
         request.save_root.as_deref(),

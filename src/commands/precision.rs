@@ -86,6 +86,8 @@ pub struct SimulateRequest {
     pub quiet: bool,
     pub format: Format,
     pub save_root: Option<PathBuf>,
+    /// A caller's stop flag (without one, Ctrl-C stops the runs).
+    pub control: crate::search::Control,
 }
 
 /// Most runs accepted (the works are kept in memory, 32 bytes a run).
@@ -106,7 +108,11 @@ static STOP: AtomicBool = AtomicBool::new(false);
 /// `ergopath simulate`: Gillespie runs of the model (with a saved design's pathways), the
 /// empirical mean power and diffusion with 99% intervals beside the exact values.
 pub fn simulate(path: &Path, request: &SimulateRequest) -> Result<String, Error> {
-    let model = Model::load(path)?;
+    simulate_on(&Model::load(path)?, request)
+}
+
+/// [`simulate`] on a model in memory.
+pub fn simulate_on(model: &Model, request: &SimulateRequest) -> Result<String, Error> {
     let t_unit = model.units.time.name();
     if !(request.time.is_finite() && request.time > 0.0) {
         return Err(Error::Usage(format!(
@@ -121,7 +127,7 @@ pub fn simulate(path: &Path, request: &SimulateRequest) -> Result<String, Error>
         )));
     }
     let pathways = match &request.design {
-        Some(file) => read_design(file, &model)?,
+        Some(file) => read_design(file, model)?,
         None => Vec::new(),
     };
     let extra: Vec<crate::model::Channel> = pathways.iter().map(Pathway::channel).collect();
@@ -154,17 +160,23 @@ pub fn simulate(path: &Path, request: &SimulateRequest) -> Result<String, Error>
         grid_points: CHART_POINTS,
     };
     let stationary = fluctuation::cumulative(&state.probabilities);
-    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    let stop: &AtomicBool = match &request.control.stop {
+        Some(flag) => flag,
+        None => {
+            let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+            &STOP
+        }
+    };
     let bar = crate::progress::Bar::new(request.quiet, model.units.power_label(), 1.0);
     bar.start_counting(request.runs as u64, "runs");
     let jumps = AtomicU64::new(0);
     let runs: Vec<Option<fluctuation::Run>> = (0..request.runs)
         .into_par_iter()
         .map(|i| {
-            if STOP.load(Ordering::Relaxed) {
+            if stop.load(Ordering::Relaxed) {
                 return None;
             }
-            let run = fluctuation::simulate_run(&table, &stationary, &settings, i, &STOP)?;
+            let run = fluctuation::simulate_run(&table, &stationary, &settings, i, stop)?;
             let total = jumps.fetch_add(run.jumps, Ordering::Relaxed) + run.jumps;
             bar.step(format!("{total} jumps"));
             Some(run)
@@ -192,7 +204,7 @@ pub fn simulate(path: &Path, request: &SimulateRequest) -> Result<String, Error>
         .map(|r| r.trajectory.clone())
         .collect();
     let report = SimulateReport::new(
-        &model,
+        model,
         request.design.as_ref().map(|p| p.display().to_string()),
         &settings,
         &empirical,
@@ -207,7 +219,7 @@ pub fn simulate(path: &Path, request: &SimulateRequest) -> Result<String, Error>
         svg: report.svg(),
     };
     emit(
-        &model,
+        model,
         "simulate",
         request.format,
         request.save_root.as_deref(),

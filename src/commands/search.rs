@@ -23,8 +23,12 @@ impl From<SearchError> for Error {
     fn from(e: SearchError) -> Self {
         match e {
             SearchError::Solve(s) => Error::Solve(s),
-            SearchError::Interrupted { finished, total } => Error::Interrupted(format!(
-                "interrupted: {finished} of {total} branches finished"
+            SearchError::Interrupted {
+                finished,
+                total,
+                what,
+            } => Error::Interrupted(format!(
+                "interrupted: {finished} of {total} {what} finished; nothing was written"
             )),
             other => Error::Usage(other.to_string()),
         }
@@ -364,7 +368,7 @@ fn describe(model: &Model, pairs: &PairSelection) -> String {
 }
 
 /// Search knobs shared by `design`, `sweep` and `compare`.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub struct SearchKnobs {
     pub top: usize,
     pub starts: usize,
@@ -376,6 +380,8 @@ pub struct SearchKnobs {
     pub quiet: bool,
     /// Environment-blind pathways: the same rates in every environment state.
     pub blind: bool,
+    /// A caller's stop flag and progress observer (the terminal bar when it has none).
+    pub control: search::Control,
 }
 
 impl Default for SearchKnobs {
@@ -395,6 +401,7 @@ impl Default for SearchKnobs {
             threads: 0,
             quiet: false,
             blind: false,
+            control: search::Control::default(),
         }
     }
 }
@@ -428,12 +435,24 @@ impl SearchKnobs {
         Ok(pool.install(work))
     }
 
-    fn bar(&self, model: &Model) -> Bar {
-        Bar::new(
-            self.quiet,
-            model.units.power_label(),
-            model.units.from_kt(1.0),
-        )
+    /// The caller's observer, else the terminal progress bar.
+    fn observer(&self, model: &Model) -> std::sync::Arc<dyn Observer + Send> {
+        self.control.observer.clone().unwrap_or_else(|| {
+            std::sync::Arc::new(Bar::new(
+                self.quiet,
+                model.units.power_label(),
+                model.units.from_kt(1.0),
+            ))
+        })
+    }
+
+    /// The refusal of a run the caller stopped.
+    fn stopped(&self, done: usize, total: usize, what: &str) -> Option<Error> {
+        self.control.stop_requested().then(|| {
+            Error::Interrupted(format!(
+                "interrupted on request: {done} of {total} {what} finished; nothing was kept"
+            ))
+        })
     }
 }
 
@@ -452,7 +471,7 @@ fn search_model(
     knobs: &SearchKnobs,
     observer: &dyn Observer,
 ) -> Result<Outcome, Error> {
-    let part = knobs.in_pool(|| searcher.run(Shard::WHOLE, observer, &search::NoCheckpoint))??;
+    let part = knobs.in_pool(|| searcher.run(Shard::WHOLE, observer, &knobs.control))??;
     Ok(search::merge(vec![part])?)
 }
 
@@ -547,8 +566,34 @@ fn selection_of(pairs: &PairSelection) -> Option<Vec<(usize, usize)>> {
 
 /// `ergopath design`: ranked designs within the budget; with a shard, writes its part file.
 pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
-    let model = Model::load(path)?;
-    let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
+    design_on(&Model::load(path)?, Some(path), request)
+}
+
+/// The refusal of a file-bound option (`what`) for a model that came from no file.
+fn needs_model_file(file: Option<&Path>, what: &str) -> Result<(), Error> {
+    match file {
+        Some(_) => Ok(()),
+        None => Err(Error::Usage(format!(
+            "{what} needs a model loaded from a file (the file records which model it belongs to): load the model from its TOML file"
+        ))),
+    }
+}
+
+/// [`design`] on a model in memory; `file` is the model's file, which shards and checkpoints
+/// record (`None` refuses them).
+pub fn design_on(
+    model: &Model,
+    file: Option<&Path>,
+    request: &DesignRequest,
+) -> Result<String, Error> {
+    if request.shard.is_some() {
+        needs_model_file(file, "a shard")?;
+    }
+    if request.checkpoint.is_some() {
+        needs_model_file(file, "a checkpoint")?;
+    }
+    let path = file.unwrap_or(&model.source);
+    let pairs = resolve_pairs(model, request.pairs.as_deref())?;
     // With a precision limit the search keeps a wider pool by power, so that the limit picks
     // the best designs that meet it among more than the top few.
     let pool = SearchKnobs {
@@ -559,9 +604,9 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
                 .saturating_mul(super::precision::FANO_POOL),
             None => request.knobs.top,
         },
-        ..request.knobs
+        ..request.knobs.clone()
     };
-    let settings = pool.settings(resolve_budget(&model, &request.budget)?)?;
+    let settings = pool.settings(resolve_budget(model, &request.budget)?)?;
     if request.max_fano.is_some() && request.shard.is_some() {
         return Err(Error::Usage("--max-fano and --shard do not combine: a shard writes all its designs to its part file; give --max-fano to a run without --shard".into()));
     }
@@ -576,19 +621,20 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     check_checkpoint_for(
         request.checkpoint.as_deref(),
         path,
-        &model,
+        model,
         request.save_root.as_deref(),
     )?;
-    let bound = solve_bound(&model, &pairs)?;
-    let bar = request.knobs.bar(&model);
-    let searcher = searcher_for(&model, &pairs, &bound, settings, request.knobs.blind)?;
+    let bound = solve_bound(model, &pairs)?;
+    let bar = request.knobs.observer(model);
+    let bar = &*bar;
+    let searcher = searcher_for(model, &pairs, &bound, settings, request.knobs.blind)?;
     let shard = request
         .shard
         .map_or(Shard::WHOLE, |(index, count)| Shard { index, count });
     let part = match &request.checkpoint {
         None => request
             .knobs
-            .in_pool(|| searcher.run(shard, &bar, &search::NoCheckpoint))??,
+            .in_pool(|| searcher.run(shard, bar, &request.knobs.control))??,
         Some(file) => {
             let keeper = FileKeeper::open(
                 file,
@@ -599,7 +645,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             )?;
             let run = request
                 .knobs
-                .in_pool(|| searcher.run(shard, &bar, &keeper))?;
+                .in_pool(|| searcher.run(shard, bar, &keeper))?;
             if let Some(failure) = keeper.take_failure() {
                 return Err(Error::Checkpoint {
                     source: failure,
@@ -608,7 +654,11 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             }
             let part = run.map_err(|e| match e {
                 // Only what the file really holds is reported as kept.
-                SearchError::Interrupted { total, .. } => Error::Interrupted(format!(
+                SearchError::Interrupted {
+                    total,
+                    what: "branches",
+                    ..
+                } => Error::Interrupted(format!(
                     "interrupted: {} of {total} branches finished and kept in {}; `--resume` continues from there",
                     keeper.on_disk(),
                     file.display()
@@ -641,7 +691,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
     if shard == Shard::WHOLE {
         let outcome = search::merge(vec![part])?;
         return design_output(
-            &model,
+            model,
             &pairs,
             &bound,
             &outcome,
@@ -650,7 +700,7 @@ pub fn design(path: &Path, request: &DesignRequest) -> Result<String, Error> {
             request.max_fano.map(|x| (x, request.knobs.top)),
         );
     }
-    write_part(path, &model, &pairs, part, request.save_root.as_deref())
+    write_part(path, model, &pairs, part, request.save_root.as_deref())
 }
 
 /// Writes one shard's part file under `<root>/<model stem>/` and says how to merge the parts.
@@ -1061,13 +1111,26 @@ fn with_value(mut flags: BudgetFlags, over: SweepOver, value: f64) -> BudgetFlag
 
 /// `ergopath sweep`: the best design at each budget value beside the universal bound.
 pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
-    let model = Model::load(path)?;
-    let pairs = resolve_pairs(&model, request.pairs.as_deref())?;
+    sweep_on(&Model::load(path)?, Some(path), request)
+}
+
+/// [`sweep`] on a model in memory; `file` is the model's file, which a checkpoint records
+/// (`None` refuses one).
+pub fn sweep_on(
+    model: &Model,
+    file: Option<&Path>,
+    request: &SweepRequest,
+) -> Result<String, Error> {
+    if request.checkpoint.is_some() {
+        needs_model_file(file, "a checkpoint")?;
+    }
+    let path = file.unwrap_or(&model.source);
+    let pairs = resolve_pairs(model, request.pairs.as_deref())?;
     let (over, values) = sweep_values(&request.over, request.points)?;
-    let bound = solve_bound(&model, &pairs)?;
+    let bound = solve_bound(model, &pairs)?;
     let knobs = SearchKnobs {
         top: 1,
-        ..request.knobs
+        ..request.knobs.clone()
     };
     if request.resume && request.checkpoint.is_none() {
         return Err(Error::Usage(
@@ -1092,18 +1155,18 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
     check_checkpoint_for(
         request.checkpoint.as_deref(),
         path,
-        &model,
+        model,
         request.save_root.as_deref(),
     )?;
     let mut done = sweep_progress(request.checkpoint.as_deref(), &identity, request.resume)?;
     if let Some(file) = &request.checkpoint {
-        check_sweep_points(&model, &pairs, &knobs, request, over, &values, &done)
+        check_sweep_points(model, &pairs, &knobs, request, over, &values, &done)
             .map_err(|why| damaged_checkpoint(file, &why))?;
         // Written at once, so that a checkpoint that cannot be written fails before any work.
         write_sweep_checkpoint(file, &identity, &done, done.len())?;
         let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
     }
-    let bar = knobs.bar(&model);
+    let bar = knobs.observer(model);
     bar.start(values.len() as u64, "budget points");
     let mut best_so_far: Option<search::Found> = None;
     let mut new_points = 0;
@@ -1128,10 +1191,14 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
                 )));
             }
         }
-        let budget = resolve_budget(&model, &with_value(request.budget, over, value))?;
+        if let Some(stopped) = knobs.stopped(i, values.len(), "budget points") {
+            bar.finish();
+            return Err(stopped);
+        }
+        let budget = resolve_budget(model, &with_value(request.budget, over, value))?;
         let settings = knobs.settings(budget)?;
         // One searcher per budget value: its search and the relaxation at that budget.
-        let searcher = searcher_for(&model, &pairs, &bound, settings, knobs.blind)?;
+        let searcher = searcher_for(model, &pairs, &bound, settings, knobs.blind)?;
         let outcome = search_model(&searcher, &knobs, &Silent)?;
         // A design that met a tighter budget meets this one too, so the best never falls.
         let mut best = outcome.designs.first().cloned();
@@ -1171,7 +1238,7 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         .iter()
         .map(|d| {
             SweepPoint::new(
-                &model,
+                model,
                 &bound,
                 d.value,
                 d.best.as_ref(),
@@ -1187,14 +1254,14 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         })
         .collect();
     let bests: Vec<Option<&search::Found>> = done.iter().map(|d| d.best.as_ref()).collect();
-    let baseline = super::precision::sweep_precision(&model, &bests, &mut points)?;
-    let first = resolve_budget(&model, &with_value(request.budget, over, values[0]))?;
+    let baseline = super::precision::sweep_precision(model, &bests, &mut points)?;
+    let first = resolve_budget(model, &with_value(request.budget, over, values[0]))?;
     let report = SweepReport::new(
-        &model,
+        model,
         &bound,
-        describe(&model, &pairs),
+        describe(model, &pairs),
         over.name(),
-        BudgetJson::of(&first, &model),
+        BudgetJson::of(&first, model),
         points,
     );
     let rendered = Rendered {
@@ -1204,13 +1271,13 @@ pub fn sweep(path: &Path, request: &SweepRequest) -> Result<String, Error> {
         svg: Some(report.svg()),
     };
     let out = emit(
-        &model,
+        model,
         &format!("sweep-{}", over.name()),
         request.format,
         request.save_root.as_deref(),
         rendered,
     )?;
-    super::precision::emit_frontier(&model, &report, &baseline, request, out)
+    super::precision::emit_frontier(model, &report, &baseline, request, out)
 }
 
 /// A bare budget number means a different physical budget in models with different units (1000
@@ -1273,20 +1340,31 @@ pub fn compare(paths: &[PathBuf], request: &CompareRequest) -> Result<String, Er
         .iter()
         .map(|p| Model::load(p))
         .collect::<Result<Vec<_>, _>>()?;
-    refuse_bare_budget_across_units(&models, &request.budget)?;
+    compare_models(&models, request)
+}
+
+/// [`compare`] on models in memory.
+pub fn compare_models(models: &[Model], request: &CompareRequest) -> Result<String, Error> {
+    if models.len() < 2 {
+        return Err(Error::Usage("compare needs two or more models".into()));
+    }
+    refuse_bare_budget_across_units(models, &request.budget)?;
     let knobs = SearchKnobs {
         top: 1,
-        ..request.knobs
+        ..request.knobs.clone()
     };
     let mut rows = Vec::with_capacity(models.len());
-    for model in &models {
+    for (i, model) in models.iter().enumerate() {
+        if let Some(stopped) = knobs.stopped(i, models.len(), "models") {
+            return Err(stopped);
+        }
         let pairs = model.default_pairs();
         let bound = solve_bound(model, &pairs)?;
         let budget = resolve_budget(model, &request.budget)?;
         let best = if budget.relaxed_cap().is_some() {
             let settings = knobs.settings(budget)?;
             let searcher = searcher_for(model, &pairs, &bound, settings, knobs.blind)?;
-            let outcome = search_model(&searcher, &knobs, &knobs.bar(model))?;
+            let outcome = search_model(&searcher, &knobs, &*knobs.observer(model))?;
             outcome.designs.first().map(|d| (d.clone(), budget))
         } else {
             None

@@ -352,8 +352,14 @@ impl Environments {
 impl Model {
     /// Reads and validates a model file.
     pub fn load(path: &Path) -> Result<Model, ModelError> {
+        Self::parse(&Self::read_text(path)?, path)
+    }
+
+    /// The text of a model file, read as every input file is (regular files only, at most
+    /// 64 MB, UTF-8), each failure a located [`ModelError`].
+    pub fn read_text(path: &Path) -> Result<String, ModelError> {
         use file::{read_text_file, ReadProblem, MODEL_SIZE_LIMIT};
-        let text = read_text_file(path, MODEL_SIZE_LIMIT).map_err(|problem| match problem {
+        read_text_file(path, MODEL_SIZE_LIMIT).map_err(|problem| match problem {
             ReadProblem::Io(source) => ModelError::Unreadable {
                 path: path.to_path_buf(),
                 source,
@@ -379,8 +385,7 @@ impl Model {
                 format!("the model file is refused unread: {problem}"),
                 "split the model, or generate it with fewer states; model files are limited to 64 MB",
             ),
-        })?;
-        Self::parse(&text, path)
+        })
     }
 
     /// Validates model text; `path` is used in messages and as the default title.

@@ -254,6 +254,38 @@ pub trait Observer: Sync {
 pub struct Silent;
 impl Observer for Silent {}
 
+/// How a caller other than the terminal steers a long run (the Python package, a service): a
+/// flag that asks the run to stop after the branches or budget points in flight, and an
+/// observer of its progress. The default never stops and shows nothing through this channel.
+#[derive(Clone, Default)]
+pub struct Control {
+    pub stop: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
+    pub observer: Option<std::sync::Arc<dyn Observer + Send>>,
+}
+
+impl Control {
+    /// Whether the caller asked the run to stop.
+    pub fn stop_requested(&self) -> bool {
+        self.stop.as_ref().is_some_and(|s| s.load(Ordering::SeqCst))
+    }
+}
+
+impl std::fmt::Debug for Control {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Control")
+            .field("stop", &self.stop)
+            .field("observer", &self.observer.as_ref().map(|_| "set"))
+            .finish()
+    }
+}
+
+/// Without a checkpoint the control's stop flag is the only reason to stop early.
+impl Keeper for Control {
+    fn should_stop(&self) -> bool {
+        self.stop_requested()
+    }
+}
+
 /// Errors of the search boundary.
 #[derive(Debug, thiserror::Error)]
 pub enum SearchError {
@@ -263,9 +295,14 @@ pub enum SearchError {
     Settings(String),
     #[error("cannot merge: {0}")]
     Merge(String),
-    /// Stopped on request; `finished` of `total` branches are kept by the keeper.
-    #[error("interrupted after {finished} of {total} branches")]
-    Interrupted { finished: usize, total: usize },
+    /// Stopped on request; `finished` of `total` steps (`what`: branches, which the keeper
+    /// keeps, or beam levels, which are not kept) are done.
+    #[error("interrupted after {finished} of {total} {what}")]
+    Interrupted {
+        finished: usize,
+        total: usize,
+        what: &'static str,
+    },
 }
 
 /// `C(n, k)` as a float (exact below 2^53).
@@ -704,7 +741,7 @@ impl<'a> Searcher<'a> {
         let single_scorings = scorings.load(Ordering::Relaxed) as u64;
         let (ranking, branches) = match strategy {
             Strategy::Exhaustive => self.exhaustive(&singles, shard, observer, keeper)?,
-            Strategy::Beam => self.beam(&singles, observer),
+            Strategy::Beam => self.beam(&singles, observer, keeper)?,
         };
         let baseline = verify(self.network, &[])?;
         let mut designs = Vec::with_capacity(ranking.designs.len());
@@ -801,6 +838,7 @@ impl<'a> Searcher<'a> {
             return Err(SearchError::Interrupted {
                 finished,
                 total: results.len(),
+                what: "branches",
             });
         }
         let mut ranking = seed;
@@ -879,7 +917,13 @@ impl<'a> Searcher<'a> {
     }
 
     /// Beam search: keep the `beam_width` best sets of each size, extend each by one pair.
-    fn beam(&self, singles: &[Found], observer: &dyn Observer) -> (Ranking, Vec<BranchTally>) {
+    /// Stops between sets and levels when `keeper` says so (nothing of a beam is kept).
+    fn beam(
+        &self,
+        singles: &[Found],
+        observer: &dyn Observer,
+        keeper: &dyn Keeper,
+    ) -> Result<(Ranking, Vec<BranchTally>), SearchError> {
         let mut ranking = Ranking::new(self.settings.top);
         singles.iter().for_each(|s| ranking.offer(s.clone()));
         let mut level: Vec<Found> = singles.to_vec();
@@ -903,8 +947,21 @@ impl<'a> Searcher<'a> {
             let children: Vec<Vec<usize>> = children.into_iter().collect();
             level = children
                 .par_iter()
-                .filter_map(|set| self.score(set, f64::NEG_INFINITY, &scorings))
+                .filter_map(|set| {
+                    if keeper.should_stop() {
+                        return None;
+                    }
+                    self.score(set, f64::NEG_INFINITY, &scorings)
+                })
                 .collect();
+            if keeper.should_stop() {
+                observer.finish();
+                return Err(SearchError::Interrupted {
+                    finished: size - 2,
+                    total: self.k() - 1,
+                    what: "beam levels",
+                });
+            }
             level.iter().for_each(|d| ranking.offer(d.clone()));
             tallies.push(BranchTally {
                 branch: size,
@@ -915,7 +972,7 @@ impl<'a> Searcher<'a> {
             observer.advance(level.len() as u64, ranking.designs[0].power);
         }
         observer.finish();
-        (ranking, tallies)
+        Ok((ranking, tallies))
     }
 }
 

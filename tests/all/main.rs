@@ -13,6 +13,7 @@ mod extremes;
 mod first_use;
 mod fuzzing;
 mod invariants;
+mod library_api;
 mod precision;
 mod published;
 mod reference;

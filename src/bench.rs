@@ -231,7 +231,7 @@ pub fn time_bound(
                 Err(e) => return Err(e),
             };
             let design_seconds = if newton_only {
-                let fractions = crate::commands::SPEED_TABLE_FRACTIONS;
+                let fractions = crate::bound::design::SPEED_TABLE_FRACTIONS;
                 let (s, attained) = median_seconds(1, || {
                     crate::bound::design::attaining(&net, &b, &PairSelection::All, 0.99, &fractions)
                 });

@@ -3,7 +3,7 @@
 //! Owns the choice of factorisation parameters and the reuse of a symbolic analysis across
 //! matrices of one sparsity pattern. Nothing here knows about networks.
 
-use crate::steady::SolveError;
+use crate::solve_error::SolveError;
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::sparse::linalg::lu::{
     factorize_symbolic_lu, LuRef, LuSymbolicParams, NumericLu, SymbolicLu,

@@ -17,21 +17,7 @@ use crate::numeric::{DoubleDouble, DOUBLE_DOUBLE_EPSILON};
 use faer::sparse::Triplet;
 use faer::Mat;
 
-/// Errors of the numerical layer.
-#[derive(Debug, thiserror::Error)]
-pub enum SolveError {
-    #[error("the sparse factorisation failed: {0}")]
-    Factorisation(String),
-    #[error("the steady state could not be resolved: {0}")]
-    Unresolved(String),
-    #[error("the conic solver (Clarabel) did not solve the bound program: status {0}")]
-    Conic(String),
-    #[error("the bound could not be certified: {0}")]
-    Uncertified(String),
-    /// The bound program's round-off, not the optimisation, keeps the gap above the limit.
-    #[error("the bound is not determined by double precision: {0}")]
-    NotDetermined(String),
-}
+pub use crate::solve_error::SolveError;
 
 /// How the steady state was computed.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -8,6 +8,12 @@ use super::Bound;
 use crate::model::{components, Channel, Network, PairSelection};
 use crate::steady::{self, SolveError, SteadySettings};
 
+/// Largest model for which the capped design may consider every pair of states.
+pub const CAPPED_ALL_PAIRS_LIMIT: usize = 60;
+
+/// Shares of the headroom in the speed table.
+pub const SPEED_TABLE_FRACTIONS: [f64; 4] = [0.5, 0.9, 0.99, 0.999];
+
 /// An added pathway: rates and the work it stores per forward jump (kT). Zero drive.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Pathway {

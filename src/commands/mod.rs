@@ -359,11 +359,7 @@ fn resolve_pairs(model: &Model, text: Option<&str>) -> Result<PairSelection, Err
     }
 }
 
-/// Largest model for which the capped design may consider every pair of states.
-pub const CAPPED_ALL_PAIRS_LIMIT: usize = 60;
-
-/// Shares of the headroom in the speed table.
-pub const SPEED_TABLE_FRACTIONS: [f64; 4] = [0.5, 0.9, 0.99, 0.999];
+pub use crate::bound::design::{CAPPED_ALL_PAIRS_LIMIT, SPEED_TABLE_FRACTIONS};
 
 /// `ergopath bound`: certified bound, attaining design, speed table, capped design.
 pub fn bound(path: &Path, request: &BoundRequest) -> Result<String, Error> {

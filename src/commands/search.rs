@@ -654,15 +654,18 @@ pub fn design_on(
             }
             let part = run.map_err(|e| match e {
                 // Only what the file really holds is reported as kept.
-                SearchError::Interrupted {
-                    total,
-                    what: "branches",
-                    ..
-                } => Error::Interrupted(format!(
-                    "interrupted: {} of {total} branches finished and kept in {}; `--resume` continues from there",
-                    keeper.on_disk(),
-                    file.display()
-                )),
+                SearchError::Interrupted { total, what, .. } => {
+                    let of = if what == "branches" {
+                        format!(" of {total}")
+                    } else {
+                        String::new()
+                    };
+                    Error::Interrupted(format!(
+                        "interrupted: {}{of} branches finished and kept in {}; `--resume` continues from there",
+                        keeper.on_disk(),
+                        file.display()
+                    ))
+                }
                 other => Error::from(other),
             })?;
             // Designs taken from the checkpoint rank by the power it states: each ranked one

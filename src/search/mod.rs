@@ -730,14 +730,26 @@ impl<'a> Searcher<'a> {
             )));
         }
         let scorings = AtomicUsize::new(0);
-        let singles: Vec<Found> = (0..self.candidates.len())
+        let singles: Option<Vec<Found>> = (0..self.candidates.len())
             .into_par_iter()
-            .map(|i| self.score(&[i], f64::NEG_INFINITY, &scorings))
-            .collect::<Option<Vec<_>>>()
-            .ok_or_else(|| {
-                // With no threshold every set is scored; only a set without starts lands here.
-                SearchError::Settings("a single pathway could not be scored (no start)".into())
-            })?;
+            .map(|i| {
+                if keeper.should_stop() {
+                    return None;
+                }
+                self.score(&[i], f64::NEG_INFINITY, &scorings)
+            })
+            .collect::<Option<Vec<_>>>();
+        if keeper.should_stop() {
+            return Err(SearchError::Interrupted {
+                finished: 0,
+                total: self.candidates.len(),
+                what: "single pathways",
+            });
+        }
+        let singles: Vec<Found> = singles.ok_or_else(|| {
+            // With no threshold every set is scored; only a set without starts lands here.
+            SearchError::Settings("a single pathway could not be scored (no start)".into())
+        })?;
         let single_scorings = scorings.load(Ordering::Relaxed) as u64;
         let (ranking, branches) = match strategy {
             Strategy::Exhaustive => self.exhaustive(&singles, shard, observer, keeper)?,

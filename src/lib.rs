@@ -79,6 +79,7 @@ pub mod search;
 pub mod sensitivity;
 pub mod solve_error;
 pub mod steady;
+pub mod uncertainty;
 pub mod units;
 
 pub use commands::Error;

@@ -68,6 +68,33 @@ enum Command {
         #[command(flatten)]
         save: SaveFlag,
     },
+    /// Quantiles of baseline power, bound and headroom over networks sampled from the model's uncertainty
+    #[command(
+        after_help = "Example:\n  ergopath uncertainty problems/walker.toml --samples 1000 --seed 7 --save\n\nThe model gives rate_uncertainty (a factor at 95%) and energy_uncertainty (a 95% half-width in\nthe energy unit) at the top level or per state and transition; backward rates follow from LDB."
+    )]
+    Uncertainty {
+        /// Model file (TOML)
+        model: PathBuf,
+        /// Number of sampled networks
+        #[arg(long, value_name = "N", default_value_t = 1000)]
+        samples: usize,
+        /// Seed of the samples (same seed, same result on any number of threads)
+        #[arg(long, value_name = "S", default_value_t = 1)]
+        seed: u64,
+        /// Where added pathways may act: all, or A/B,C/D (default: the model's [pathways] pairs)
+        #[arg(long)]
+        pairs: Option<String>,
+        /// Worker threads (default: one per core)
+        #[arg(long, default_value_t = 0)]
+        threads: usize,
+        /// No progress bar
+        #[arg(long, short)]
+        quiet: bool,
+        #[command(flatten)]
+        format: FormatFlags,
+        #[command(flatten)]
+        save: SaveFlag,
+    },
     /// Universal bound on harvesting power under added pathways, with a design that attains it
     #[command(
         after_help = "Examples:\n  ergopath bound problems/ring6.toml\n  ergopath bound problems/walker.toml --pairs empty/stepped,fuel_bound/hydrolysed --rate-cap 1000 --json"
@@ -119,6 +146,13 @@ enum Command {
         /// Rank only designs whose Fano factor |2D/J| (energy unit) is at most X: a regular enough work current
         #[arg(long, value_name = "X")]
         max_fano: Option<f64>,
+        /// Also rank the designs by a quantile of their power over N networks sampled from the
+        /// model's uncertainty (the designs' rates fixed; the samples use --seed)
+        #[arg(long, value_name = "N")]
+        samples: Option<usize>,
+        /// The quantile of --samples (0.05: the power that 95% of the samples exceed)
+        #[arg(long, value_name = "Q", default_value_t = 0.05, requires = "samples")]
+        quantile: f64,
         #[command(flatten)]
         format: FormatFlags,
         #[command(flatten)]
@@ -450,6 +484,30 @@ fn main() -> ExitCode {
             format,
             save,
         } => commands::steady(model, format.format(), save.root().as_deref()),
+        Command::Uncertainty {
+            model,
+            samples,
+            seed,
+            pairs,
+            threads,
+            quiet,
+            format,
+            save,
+        } => commands::uncertainty(
+            model,
+            &commands::UncertaintyRequest {
+                pairs: pairs.clone(),
+                samples: *samples,
+                seed: *seed,
+                knobs: commands::SearchKnobs {
+                    threads: capped_threads(*threads),
+                    quiet: *quiet,
+                    ..Default::default()
+                },
+                format: format.format(),
+                save_root: save.root(),
+            },
+        ),
         Command::Sensitivity {
             model,
             format,
@@ -517,6 +575,8 @@ fn main() -> ExitCode {
             resume,
             stop_after_branches,
             max_fano,
+            samples,
+            quantile,
             format,
             save,
         } => commands::design(
@@ -530,6 +590,7 @@ fn main() -> ExitCode {
                 resume: *resume,
                 stop_after: *stop_after_branches,
                 max_fano: *max_fano,
+                samples: samples.map(|n| (n, *quantile)),
                 format: format.format(),
                 save_root: save.root(),
             },

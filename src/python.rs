@@ -39,7 +39,7 @@ pyo3::create_exception!(
 );
 
 /// The command-line flags that messages name, and the keyword arguments they are in Python.
-const FLAG_NAMES: [(&str, &str); 19] = [
+const FLAG_NAMES: [(&str, &str); 21] = [
     ("--rate-cap", "rate_cap"),
     ("--total-rate", "total_rate"),
     ("--work-limit", "work_limit"),
@@ -59,6 +59,8 @@ const FLAG_NAMES: [(&str, &str); 19] = [
     ("--time", "time"),
     ("--runs", "runs"),
     ("--blind", "blind"),
+    ("--samples", "samples"),
+    ("--quantile", "quantile"),
 ];
 
 /// A message of the library with each flag it names written as the keyword argument.
@@ -283,6 +285,8 @@ struct Settings {
     design: Option<PathBuf>,
     time: Option<f64>,
     runs: Option<usize>,
+    samples: Option<usize>,
+    quantile: Option<f64>,
 }
 
 impl Settings {
@@ -505,6 +509,7 @@ fn dispatch(
                 budget: s.budget()?,
                 knobs,
                 max_fano: s.max_fano,
+                samples: s.samples.map(|n| (n, s.quantile.unwrap_or(0.05))),
                 format,
                 save_root: save,
                 ..Default::default()
@@ -524,6 +529,17 @@ fn dispatch(
                 ..Default::default()
             },
         ),
+        "uncertainty" => commands::uncertainty_on(
+            single(models, job)?,
+            &commands::UncertaintyRequest {
+                pairs: s.pairs_text(),
+                samples: s.samples.unwrap_or(1000),
+                seed: s.seed.unwrap_or(1),
+                knobs,
+                format,
+                save_root: save,
+            },
+        ),
         "simulate" => in_threads(&|| {
             commands::simulate_on(
                 single(models, job)?,
@@ -540,7 +556,7 @@ fn dispatch(
             )
         }),
         other => Err(Error::Usage(format!(
-            "'{other}' is not a job: give steady, bound, design, sweep, compare, regimes, sensitivity or simulate"
+            "'{other}' is not a job: give steady, bound, design, sweep, compare, regimes, sensitivity, uncertainty or simulate"
         ))),
     }
 }

@@ -17,11 +17,13 @@ pub const MODEL_FORMAT: &str = include_str!("../../docs/model-format.md");
 pub mod files;
 mod precision;
 mod search;
+mod uncertainty;
 pub use precision::{simulate, simulate_on, SimulateRequest};
 pub use search::{
     compare, compare_models, design, design_on, merge, sweep, sweep_on, BudgetFlags,
     CompareRequest, DesignRequest, SearchKnobs, SweepRequest,
 };
+pub use uncertainty::{uncertainty, uncertainty_on, UncertaintyRequest};
 
 /// Errors of a command run, by boundary.
 #[derive(Debug, thiserror::Error)]

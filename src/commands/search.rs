@@ -427,7 +427,7 @@ impl SearchKnobs {
     }
 
     /// Runs `work` on a pool of the requested size.
-    fn in_pool<T: Send>(&self, work: impl FnOnce() -> T + Send) -> Result<T, Error> {
+    pub(super) fn in_pool<T: Send>(&self, work: impl FnOnce() -> T + Send) -> Result<T, Error> {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(self.threads)
             .build()
@@ -436,7 +436,7 @@ impl SearchKnobs {
     }
 
     /// The caller's observer, else the terminal progress bar.
-    fn observer(&self, model: &Model) -> std::sync::Arc<dyn Observer + Send> {
+    pub(super) fn observer(&self, model: &Model) -> std::sync::Arc<dyn Observer + Send> {
         self.control.observer.clone().unwrap_or_else(|| {
             std::sync::Arc::new(Bar::new(
                 self.quiet,
@@ -541,6 +541,9 @@ pub struct DesignRequest {
     pub stop_after: Option<usize>,
     /// Keep only ranked designs whose Fano factor `|2D/J|` is at most this (energy unit).
     pub max_fano: Option<f64>,
+    /// `Some((N, q))`: also rank the designs by the q-quantile of their power over N networks
+    /// sampled from the model's uncertainty (stream `knobs.seed`).
+    pub samples: Option<(usize, f64)>,
     pub format: Format,
     pub save_root: Option<PathBuf>,
 }
@@ -597,8 +600,8 @@ pub fn design_on(
     // With a precision limit the search keeps a wider pool by power, so that the limit picks
     // the best designs that meet it among more than the top few.
     let pool = SearchKnobs {
-        top: match request.max_fano {
-            Some(_) => request
+        top: match request.max_fano.map(|_| ()).or(request.samples.map(|_| ())) {
+            Some(()) => request
                 .knobs
                 .top
                 .saturating_mul(super::precision::FANO_POOL),
@@ -607,6 +610,17 @@ pub fn design_on(
         ..request.knobs.clone()
     };
     let settings = pool.settings(resolve_budget(model, &request.budget)?)?;
+    if let Some((samples, q)) = request.samples {
+        super::uncertainty::check_samples(samples)?;
+        if !(q > 0.0 && q < 1.0) {
+            return Err(Error::Usage(format!(
+                "--quantile {q}: give a share between 0 and 1, e.g. --quantile 0.05 for the power that 95% of the samples exceed"
+            )));
+        }
+        if request.shard.is_some() {
+            return Err(Error::Usage("--samples and --shard do not combine: rank the merged designs with a run without --shard".into()));
+        }
+    }
     if request.max_fano.is_some() && request.shard.is_some() {
         return Err(Error::Usage("--max-fano and --shard do not combine: a shard writes all its designs to its part file; give --max-fano to a run without --shard".into()));
     }
@@ -700,7 +714,10 @@ pub fn design_on(
             &outcome,
             request.format,
             request.save_root.as_deref(),
-            request.max_fano.map(|x| (x, request.knobs.top)),
+            Screens {
+                max_fano: request.max_fano.map(|x| (x, request.knobs.top)),
+                robust: request.samples.map(|s| (s, &request.knobs)),
+            },
         );
     }
     write_part(path, model, &pairs, part, request.save_root.as_deref())
@@ -735,6 +752,14 @@ fn write_part(
     ))
 }
 
+/// What is applied to a search's designs after the search: the `--max-fano` screen (limit,
+/// designs kept) and the ranking under uncertainty (`--samples N --quantile q`, its knobs).
+#[derive(Default)]
+struct Screens<'a> {
+    max_fano: Option<(f64, usize)>,
+    robust: Option<((usize, f64), &'a SearchKnobs)>,
+}
+
 fn design_output(
     model: &Model,
     pairs: &PairSelection,
@@ -742,9 +767,32 @@ fn design_output(
     outcome: &Outcome,
     format: Format,
     save_root: Option<&Path>,
-    max_fano: Option<(f64, usize)>,
+    screens: Screens,
 ) -> Result<String, Error> {
-    let (outcome, precisions, left_out) = super::precision::screen(model, outcome, max_fano)?;
+    let Screens { max_fano, robust } = screens;
+    // The ranking under uncertainty covers the whole pool the search kept, by nominal power;
+    // the nominal list still shows `--top` designs.
+    let shown = robust.map(|(_, knobs)| knobs.top);
+    let robust = match robust {
+        None => None,
+        Some((samples, knobs)) => {
+            let network = &model.network;
+            let pool: Vec<Vec<design::Pathway>> = outcome
+                .designs
+                .iter()
+                .map(|d| d.pathways(network))
+                .collect();
+            Some(super::uncertainty::robust_ranking(
+                model, &pool, samples, knobs,
+            )?)
+        }
+    };
+    let (mut outcome, mut precisions, left_out) =
+        super::precision::screen(model, outcome, max_fano)?;
+    if let (Some(top), None) = (shown, max_fano) {
+        outcome.designs.truncate(top);
+        precisions.truncate(top);
+    }
     let max_fano = max_fano.map(|(x, _)| x);
     let network = &model.network;
     let oriented = outcome
@@ -753,6 +801,7 @@ fn design_output(
         .map(|d| design::oriented(network, d.pathways(network)))
         .collect::<Result<Vec<_>, _>>()?;
     let mut report = DesignReport::new(model, bound, describe(model, pairs), &outcome, &oriented);
+    report.uncertainty = robust;
     report.attach_precision(
         &precisions,
         &model.units,
@@ -760,8 +809,12 @@ fn design_output(
         left_out,
         super::precision::FANO_POOL,
     );
+    let mut text = report.text();
+    if let Some(ranking) = &report.uncertainty {
+        text.push_str(&ranking.text(&report.units.power));
+    }
     let rendered = Rendered {
-        text: report.text(),
+        text,
         json: to_json(&report)?,
         csv: Some(report.csv()),
         svg: report.svg(),
@@ -880,7 +933,15 @@ pub fn merge(
     }
     let outcome = search::merge(parts)?;
     let bound = solve_bound(&model, &pairs)?;
-    design_output(&model, &pairs, &bound, &outcome, format, save_root, None)
+    design_output(
+        &model,
+        &pairs,
+        &bound,
+        &outcome,
+        format,
+        save_root,
+        Screens::default(),
+    )
 }
 
 /// A budget quantity a sweep can vary.

@@ -16,6 +16,10 @@ pub struct ModelFile {
     pub energy_unit: Option<Spanned<String>>,
     pub time_unit: Option<Spanned<String>>,
     pub ldb_tolerance: Option<Spanned<f64>>,
+    /// Default multiplicative uncertainty (95%) of every forward rate.
+    pub rate_uncertainty: Option<Spanned<f64>>,
+    /// Default uncertainty (95% half-width, energy unit) of every state energy and nonzero drive.
+    pub energy_uncertainty: Option<Spanned<f64>>,
     #[serde(default)]
     pub state: Vec<Spanned<StateEntry>>,
     #[serde(default)]
@@ -49,6 +53,7 @@ pub struct SwitchEntry {
 pub struct StateEntry {
     pub name: Spanned<String>,
     pub energy: Option<Spanned<f64>>,
+    pub energy_uncertainty: Option<Spanned<f64>>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -63,6 +68,10 @@ pub struct TransitionEntry {
     pub label: Option<String>,
     /// Environment states in which the transition exists (default: all).
     pub environments: Option<Spanned<Vec<String>>>,
+    /// Multiplicative uncertainty (95%) of the forward rate.
+    pub rate_uncertainty: Option<Spanned<f64>>,
+    /// Uncertainty (95% half-width, energy unit) of the drive.
+    pub energy_uncertainty: Option<Spanned<f64>>,
 }
 
 #[derive(Debug, Deserialize)]

@@ -11,6 +11,7 @@ pub mod cycles;
 mod error;
 mod file;
 mod parse;
+pub mod uncertainty;
 
 pub use caution::{Caution, CautionKind};
 pub use error::{Diagnostic, ModelError, Position};
@@ -281,6 +282,8 @@ pub struct Model {
     /// The fluctuating environment, when the model has one: then the network is the joint
     /// chain over (system state, environment state) and `state_names` are `state@environment`.
     pub environments: Option<Environments>,
+    /// The parameters' uncertainty, when the file gives any.
+    pub uncertainty: Option<uncertainty::Uncertainty>,
 }
 
 /// A fluctuating environment: joint state `s * E + e` is system state `s` in environment

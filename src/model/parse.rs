@@ -6,6 +6,7 @@ use super::file::{
     EnvironmentEntry, ModelFile, PairsEntry, PathwaysEntry, StateEntry, SwitchEntry,
     TransitionEntry,
 };
+use super::uncertainty::{ln_rate_sd, Uncertainty, Z_95};
 use super::{
     log_ratio, Channel, Completion, Environments, Model, ModelError, Network, PairSelection,
     PathwayDefaults, TransitionInfo, DEFAULT_LDB_TOLERANCE, MAX_LDB_TOLERANCE,
@@ -100,6 +101,8 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
         None => PathwayDefaults::default(),
         Some(p) => parse_pathways(&ctx, p.get_ref(), &index, &units)?,
     };
+    let spreads = parse_uncertainty(&ctx, &file, &units, &system)?;
+    let mut channel_transition: Vec<Option<usize>> = (0..system.channels.len()).map(Some).collect();
     let (network, state_names, transitions, environments, pathways) = match environment_names {
         None => {
             check_connected(&ctx, &system, &state_names, |i| {
@@ -112,7 +115,8 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
                 names,
                 system_states: state_names,
             };
-            let (joint, infos) = joint_network(&ctx, &file, &system, &transitions, &envs)?;
+            let (joint, infos, copies) = joint_network(&ctx, &file, &system, &transitions, &envs)?;
+            channel_transition = copies;
             let joint_names = envs.joint_names();
             check_connected(&ctx, &joint, &joint_names, |j| {
                 Some(file.state[envs.split(j).0].span().start)
@@ -132,6 +136,19 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
     });
     let cautions =
         super::caution::of_model(&units, file.temperature.is_some(), &network, &state_names);
+    let state_system = match &environments {
+        None => (0..network.len()).collect(),
+        Some(envs) => (0..network.len()).map(|j| envs.split(j).0).collect(),
+    };
+    let uncertainty = spreads
+        .map(|(energy_sd, ln_rate_sd, drive_sd)| Uncertainty {
+            energy_sd,
+            ln_rate_sd,
+            drive_sd,
+            channel_transition,
+            state_system,
+        })
+        .filter(Uncertainty::is_any);
     Ok(Model {
         title,
         source: path.to_path_buf(),
@@ -142,7 +159,89 @@ pub(super) fn parse_model(text: &str, path: &Path) -> Result<Model, ModelError> 
         pathways,
         cautions,
         environments,
+        uncertainty,
     })
+}
+
+/// Per-parameter standard deviations `(state energies, ln forward rates, drives)` in kT, or
+/// `None` when the file gives no uncertainty at all.
+type Spreads = (Vec<f64>, Vec<f64>, Vec<f64>);
+
+/// The uncertainty keys: a rate factor must be at least 1 (1 is exact), an energy half-width
+/// at least 0; a transition's drive takes the top-level default only when it is nonzero (a
+/// step without drive stays without one).
+fn parse_uncertainty(
+    ctx: &Ctx,
+    file: &ModelFile,
+    units: &Units,
+    system: &Network,
+) -> Result<Option<Spreads>, ModelError> {
+    let factor = |v: &Option<Spanned<f64>>| -> Result<Option<f64>, ModelError> {
+        match v {
+            None => Ok(None),
+            Some(f) if f.get_ref().is_finite() && *f.get_ref() >= 1.0 && *f.get_ref() <= 1e6 => {
+                Ok(Some(ln_rate_sd(*f.get_ref())))
+            }
+            Some(f) => ctx.at(
+                f,
+                format!("rate_uncertainty must be a factor from 1 to 1e6, got {}", f.get_ref()),
+                "give the factor within which the rate lies with 95% confidence, e.g. rate_uncertainty = 3 (1 means exact)",
+            ),
+        }
+    };
+    let half_width = |v: &Option<Spanned<f64>>| -> Result<Option<f64>, ModelError> {
+        match v {
+            None => Ok(None),
+            Some(u) if u.get_ref().is_finite() && *u.get_ref() >= 0.0 => {
+                let kt = units.to_kt(*u.get_ref());
+                if kt > 1e3 {
+                    return ctx.at(
+                        u,
+                        format!(
+                            "energy_uncertainty = {} {} is {kt} kT, too wide to sample",
+                            u.get_ref(),
+                            units.energy.name()
+                        ),
+                        "give the 95% half-width in the energy unit, well below 1000 kT",
+                    );
+                }
+                Ok(Some(kt / Z_95))
+            }
+            Some(u) => ctx.at(
+                u,
+                format!(
+                    "energy_uncertainty must be a number >= 0, got {}",
+                    u.get_ref()
+                ),
+                format!(
+                    "give the half-width of the 95% interval in {}, e.g. energy_uncertainty = 1",
+                    units.energy.name()
+                ),
+            ),
+        }
+    };
+    let default_rate = factor(&file.rate_uncertainty)?;
+    let default_energy = half_width(&file.energy_uncertainty)?;
+    let mut any = default_rate.is_some() || default_energy.is_some();
+    let mut energy_sd = Vec::with_capacity(file.state.len());
+    for entry in &file.state {
+        let own = half_width(&entry.get_ref().energy_uncertainty)?;
+        any |= own.is_some();
+        energy_sd.push(own.or(default_energy).unwrap_or(0.0));
+    }
+    let (mut ln_rate_sd_of, mut drive_sd) = (Vec::new(), Vec::new());
+    for (entry, channel) in file.transition.iter().zip(&system.channels) {
+        let t = entry.get_ref();
+        let (rate, energy) = (
+            factor(&t.rate_uncertainty)?,
+            half_width(&t.energy_uncertainty)?,
+        );
+        any |= rate.is_some() || energy.is_some();
+        ln_rate_sd_of.push(rate.or(default_rate).unwrap_or(0.0));
+        let inherited = default_energy.filter(|_| channel.drive != 0.0);
+        drive_sd.push(energy.or(inherited).unwrap_or(0.0));
+    }
+    Ok(any.then_some((energy_sd, ln_rate_sd_of, drive_sd)))
 }
 
 /// The `[[environment]]` names, or `None` for a model without a fluctuating environment (then
@@ -200,18 +299,29 @@ fn parse_environments(ctx: &Ctx, file: &ModelFile) -> Result<Option<Vec<String>>
 /// The joint chain over (system state, environment state): each transition copied into every
 /// environment state where it exists, each switch copied for every system state (no work; its
 /// drive follows from LDB, the switching rates being set by the outside world).
+/// The joint network, the info of each of its channels, and the file transition each channel
+/// copies (`None` for switches).
+type JointChain = (Network, Vec<TransitionInfo>, Vec<Option<usize>>);
+
 fn joint_network(
     ctx: &Ctx,
     file: &ModelFile,
     system: &Network,
     infos: &[TransitionInfo],
     envs: &Environments,
-) -> Result<(Network, Vec<TransitionInfo>), ModelError> {
+) -> Result<JointChain, ModelError> {
     let count = envs.names.len();
+    let mut copies = Vec::new();
     let env_index = |name: &str| envs.names.iter().position(|n| n == name);
     let mut channels = Vec::new();
     let mut out_infos = Vec::new();
-    for ((entry, c), info) in file.transition.iter().zip(&system.channels).zip(infos) {
+    for (t, ((entry, c), info)) in file
+        .transition
+        .iter()
+        .zip(&system.channels)
+        .zip(infos)
+        .enumerate()
+    {
         let present: Vec<usize> = match &entry.get_ref().environments {
             None => (0..count).collect(),
             Some(list) => {
@@ -246,6 +356,7 @@ fn joint_network(
                 ..*c
             });
             out_infos.push(info.clone());
+            copies.push(Some(t));
         }
     }
     for entry in &file.switch {
@@ -295,12 +406,13 @@ fn joint_network(
                 label: Some(format!("switch {}->{}", from.get_ref(), to.get_ref())),
                 completion: Completion::DriveImplied,
             });
+            copies.push(None);
         }
     }
     let energies = (0..system.len() * count)
         .map(|j| system.energies[envs.split(j).0])
         .collect();
-    Ok((Network { energies, channels }, out_infos))
+    Ok((Network { energies, channels }, out_infos, copies))
 }
 
 /// A fix for a TOML decoding message (unknown keys, wrong types, missing keys, syntax).

@@ -130,6 +130,9 @@ pub struct DesignReport {
     #[serde(skip)]
     pub fano_pool: usize,
     pub cautions: Vec<crate::model::Caution>,
+    /// `--samples N --quantile q`: the designs ranked under the model's uncertainty.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub uncertainty: Option<super::uncertainty::RobustRankingJson>,
 }
 
 impl RankedDesign {
@@ -203,6 +206,7 @@ impl DesignReport {
             left_out_by_fano: 0,
             fano_pool: 1,
             cautions: design_cautions(model, outcome),
+            uncertainty: None,
             designs: outcome
                 .designs
                 .iter()

@@ -20,6 +20,7 @@ pub mod summary;
 pub mod svg;
 pub mod sweep;
 pub mod table;
+pub mod uncertainty;
 
 use crate::model::Model;
 use serde::Serialize;

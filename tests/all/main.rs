@@ -22,3 +22,4 @@ mod resume;
 mod safe_files;
 mod sensitivity;
 mod steady_numerics;
+mod uncertainty;

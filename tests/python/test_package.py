@@ -42,6 +42,12 @@ def test_every_job_equals_the_cli_json(cli, at_root):
     other = ergopath.load("problems/walker.toml")
     ranked = ergopath.compare([model, other], max_pathways=1, rate_cap="100/s")
     assert ranked.to_dict() == cli("compare", path, "problems/walker.toml", "--json", "--max-pathways", "1", "--rate-cap", "100/s", "-q")
+    walker = ergopath.load("problems/walker.toml")
+    sampled = walker.uncertainty(200, seed=5, threads=2)
+    assert sampled.to_dict() == cli("uncertainty", "problems/walker.toml", "--json", "--samples", "200", "--seed", "5", "-q")
+    robust = walker.design(max_pathways=1, top=3, samples=50, quantile=0.1)
+    assert robust.to_dict() == cli("design", "problems/walker.toml", "--json", "--max-pathways", "1", "--top", "3", "--samples", "50", "--quantile", "0.1", "-q")
+    assert len(sampled.samples_frame) == 200
     simulated = model.simulate(5.0, runs=20, seed=3)
     assert simulated.to_dict() == cli("simulate", path, "--json", "--time", "5", "--runs", "20", "--seed", "3", "-q")
 

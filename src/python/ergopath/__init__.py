@@ -326,12 +326,16 @@ class Model:
         exhaustive_limit: Optional[int] = None,
         blind: bool = False,
         max_fano: Optional[float] = None,
+        samples: Optional[int] = None,
+        quantile: float = 0.05,
         threads: int = 0,
         progress: Progress = None,
         save: Optional[Union[str, os.PathLike]] = None,
     ) -> "Report":
         """Ranked designs (sets of added pathways with their rates) within the budget, each
-        verified by an independent steady-state solve. ``threads=0`` uses one per core."""
+        verified by an independent steady-state solve. ``threads=0`` uses one per core. With
+        ``samples``, the designs are also ranked by the ``quantile`` of their power over that
+        many networks sampled from the model's uncertainty (key ``uncertainty``)."""
         settings = dict(
             max_pathways=max_pathways,
             rate_cap=rate_cap,
@@ -345,9 +349,28 @@ class Model:
             exhaustive_limit=exhaustive_limit,
             blind=blind,
             max_fano=max_fano,
+            samples=samples,
+            quantile=quantile if samples is not None else None,
             threads=threads,
         )
         return _run("design", [self], settings, save, progress)
+
+    def uncertainty(
+        self,
+        samples: int = 1000,
+        *,
+        seed: int = 1,
+        pairs: Optional[Union[str, Iterable[Tuple[str, str]]]] = None,
+        threads: int = 0,
+        progress: Progress = None,
+        save: Optional[Union[str, os.PathLike]] = None,
+    ) -> "Report":
+        """Quantiles (5, 25, 50, 75, 95%) of the baseline power, the bound and the headroom
+        over networks sampled from the uncertainties the model file gives (``rate_uncertainty``,
+        ``energy_uncertainty``), each with a distribution-free 95% interval; ``values`` holds
+        every sample's three figures."""
+        settings = dict(samples=samples, seed=seed, pairs=_pairs(pairs), threads=threads)
+        return _run("uncertainty", [self], settings, save, progress)
 
     def sweep(
         self,
@@ -606,6 +629,17 @@ class SensitivityReport(Report):
     table = "parameters"
 
 
+class UncertaintyReport(Report):
+    table = None
+
+    @property
+    def samples_frame(self):
+        """Every solved sample's baseline power, bound and headroom as a DataFrame."""
+        import pandas as pd
+
+        return pd.DataFrame(self._data["values"], columns=["baseline_power", "bound", "headroom"])
+
+
 class SimulationReport(Report):
     table = None
 
@@ -618,6 +652,7 @@ _REPORTS = {
     "regimes": RegimesReport,
     "sensitivity": SensitivityReport,
     "simulate": SimulationReport,
+    "uncertainty": UncertaintyReport,
     "steady": Report,
 }
 

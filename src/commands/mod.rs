@@ -14,9 +14,11 @@ use std::path::Path;
 /// as `docs/model-format.md`, compiled in so that it matches this build).
 pub const MODEL_FORMAT: &str = include_str!("../../docs/model-format.md");
 
+mod draw;
 pub mod files;
 mod precision;
 mod search;
+pub use draw::{draw, DrawOf, DrawRequest};
 pub use precision::{simulate, SimulateRequest};
 pub use search::{
     compare, design, merge, sweep, BudgetFlags, CompareRequest, DesignRequest, SearchKnobs,
@@ -221,7 +223,7 @@ pub fn steady(path: &Path, format: Format, save_root: Option<&Path>) -> Result<S
         text: report.text(&model),
         json: to_json(&report)?,
         csv: Some(report.csv()),
-        svg: None,
+        svg: save_root.map(|_| draw::baseline_svg(&model, &state.probabilities, &obs)),
     };
     emit(&model, "steady", format, save_root, rendered)
 }

@@ -2,7 +2,9 @@
 # Regenerates results/ from the shipped example models: for every model in problems/, the
 # steady state, the certified bound (attaining design, speed table, chart; the rate-capped
 # design where [pathways] sets rate_cap), the ranked designs within the model's [pathways]
-# budget and a sweep of the rate cap; then a comparison of all the models.
+# budget and a sweep of the rate cap, network diagrams (baseline, the bound's optimal
+# distribution, its attaining design and the three best ranked designs); then a comparison of
+# all the models.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 cargo build --release --quiet
@@ -16,11 +18,22 @@ for model in problems/*.toml; do
   $bin sensitivity "$model" --save > /dev/null
   $bin design "$model" --save --quiet > /dev/null
   $bin sweep "$model" --over rate-cap=1..1e6 --points 13 --save --quiet > /dev/null
-  echo "results/$(basename "$model" .toml)/ regenerated"
+  name=$(basename "$model" .toml)
+  for of in baseline bound design; do
+    $bin draw "$model" --of "$of" --save > /dev/null
+  done
+  ranked=$(grep -c '"rank":' "results/$name/design.json" || true)
+  for rank in $(seq 1 $(( ranked < 3 ? ranked : 3 ))); do
+    $bin draw "$model" --design "results/$name/design.json" --rank "$rank" --save > /dev/null
+  done
+  echo "results/$name/ regenerated"
 done
 $bin regimes problems/ring6.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
 $bin regimes problems/walker.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
 $bin regimes problems/photoswitch.toml --scale stored --from 0.01 --to 1000 --points 11 --save > /dev/null
 echo "regimes sweeps regenerated"
+# Only the walker states uncertainties (invented spreads, see its file).
+$bin uncertainty problems/walker.toml --samples 1000 --seed 7 --save --quiet > /dev/null
+echo "results/walker/uncertainty regenerated"
 $bin compare problems/*.toml --save --quiet > /dev/null
 echo "results/compare/ regenerated"

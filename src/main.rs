@@ -58,6 +58,32 @@ enum Command {
         #[command(flatten)]
         save: SaveFlag,
     },
+    /// Network diagram (SVG, or DOT with --dot): states sized by probability, arrows along the net flux
+    #[command(
+        after_help = "Examples:\n  ergopath draw problems/walker.toml > walker.svg\n  ergopath draw problems/ring6.toml --of design --save\n  ergopath draw problems/walker.toml --design results/walker/design.json --rank 2 --dot | neato -n2 -Tpng > design2.png\n\nWith --save, writes network-baseline, network-bound, network-design or network-design-<rank>\n(.txt, .svg, .dot) to the results folder and prints the text summary."
+    )]
+    Draw {
+        /// Model file (TOML)
+        model: PathBuf,
+        /// What to draw: baseline (steady state), bound (its optimal distribution p*) or design (the bound's attaining design)
+        #[arg(long, value_enum)]
+        of: Option<DrawOfArg>,
+        /// Draw a saved design instead: design.json (ranked designs, see --rank) or bound.json (its attaining design)
+        #[arg(long, value_name = "FILE")]
+        design: Option<PathBuf>,
+        /// Which ranked design of --design FILE (1 = the best)
+        #[arg(long, value_name = "N", default_value_t = 1)]
+        rank: usize,
+        /// Print the graph in the DOT language (Graphviz) instead of SVG
+        #[arg(long)]
+        dot: bool,
+        /// Also write the diagram (text summary, SVG, DOT) to the results folder
+        #[arg(long)]
+        save: bool,
+        /// Results folder for --save
+        #[arg(long, value_name = "DIR", default_value = "results")]
+        results: PathBuf,
+    },
     /// Which parameter limits the bound: derivatives of baseline power and bound, ranked by headroom
     #[command(after_help = "Example:\n  ergopath sensitivity problems/walker.toml --csv")]
     Sensitivity {
@@ -308,6 +334,24 @@ enum Command {
     },
 }
 
+/// What `draw --of` shows.
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum DrawOfArg {
+    Baseline,
+    Bound,
+    Design,
+}
+
+impl DrawOfArg {
+    fn of(self) -> commands::DrawOf {
+        match self {
+            DrawOfArg::Baseline => commands::DrawOf::Baseline,
+            DrawOfArg::Bound => commands::DrawOf::Bound,
+            DrawOfArg::Design => commands::DrawOf::Design,
+        }
+    }
+}
+
 /// Budget of the added pathways; unset values come from the model's [pathways] table.
 #[derive(Args)]
 struct BudgetArgs {
@@ -506,6 +550,24 @@ fn main() -> ExitCode {
                 },
                 format: format.format(),
                 save_root: save.root(),
+            },
+        ),
+        Command::Draw {
+            model,
+            of,
+            design,
+            rank,
+            dot,
+            save,
+            results,
+        } => commands::draw(
+            model,
+            &commands::DrawRequest {
+                of: of.map(DrawOfArg::of),
+                design: design.clone(),
+                rank: *rank,
+                dot: *dot,
+                save_root: save.then(|| results.clone()),
             },
         ),
         Command::Sensitivity {

@@ -39,7 +39,7 @@ pyo3::create_exception!(
 );
 
 /// The command-line flags that messages name, and the keyword arguments they are in Python.
-const FLAG_NAMES: [(&str, &str); 21] = [
+const FLAG_NAMES: [(&str, &str); 23] = [
     ("--rate-cap", "rate_cap"),
     ("--total-rate", "total_rate"),
     ("--work-limit", "work_limit"),
@@ -61,6 +61,8 @@ const FLAG_NAMES: [(&str, &str); 21] = [
     ("--blind", "blind"),
     ("--samples", "samples"),
     ("--quantile", "quantile"),
+    ("--rank", "rank"),
+    ("--of", "of"),
 ];
 
 /// A message of the library with each flag it names written as the keyword argument.
@@ -287,6 +289,9 @@ struct Settings {
     runs: Option<usize>,
     samples: Option<usize>,
     quantile: Option<f64>,
+    of: Option<String>,
+    rank: Option<usize>,
+    dot: Option<bool>,
 }
 
 impl Settings {
@@ -410,8 +415,9 @@ fn interruptible<T: Send>(
 }
 
 /// Runs one job (`steady`, `bound`, `design`, `sweep`, `compare`, `regimes`, `sensitivity`,
-/// `simulate`) on `models` (two or more for `compare`, else one) with `settings` (a JSON
-/// object) and returns every form of its report as JSON: `{text, json, csv, svg}`. With
+/// `uncertainty`, `simulate`, `draw`) on `models` (two or more for `compare`, else one) with
+/// `settings` (a JSON object) and returns every form of its report as JSON: `{text, json, csv,
+/// svg}` (`draw` returns its SVG or DOT text itself). With
 /// `save`, the report is also written under `save/<model name>/` as the CLI's `--save` does.
 #[pyfunction]
 #[pyo3(signature = (job, models, settings, save=None, progress=None))]
@@ -529,6 +535,29 @@ fn dispatch(
                 ..Default::default()
             },
         ),
+        "draw" => {
+            let of = match s.of.as_deref() {
+                None => None,
+                Some("baseline") => Some(commands::DrawOf::Baseline),
+                Some("bound") => Some(commands::DrawOf::Bound),
+                Some("design") => Some(commands::DrawOf::Design),
+                Some(other) => {
+                    return Err(Error::Usage(format!(
+                        "of='{other}': give 'baseline', 'bound' or 'design'"
+                    )))
+                }
+            };
+            commands::draw_on(
+                single(models, job)?,
+                &commands::DrawRequest {
+                    of,
+                    design: s.design.clone(),
+                    rank: s.rank.unwrap_or(1),
+                    dot: s.dot.unwrap_or(false),
+                    save_root: save,
+                },
+            )
+        }
         "uncertainty" => commands::uncertainty_on(
             single(models, job)?,
             &commands::UncertaintyRequest {

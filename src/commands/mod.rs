@@ -14,10 +14,12 @@ use std::path::Path;
 /// as `docs/model-format.md`, compiled in so that it matches this build).
 pub const MODEL_FORMAT: &str = include_str!("../../docs/model-format.md");
 
+mod draw;
 pub mod files;
 mod precision;
 mod search;
 mod uncertainty;
+pub use draw::{draw, draw_on, DrawOf, DrawRequest};
 pub use precision::{simulate, simulate_on, SimulateRequest};
 pub use search::{
     compare, compare_models, design, design_on, merge, sweep, sweep_on, BudgetFlags,
@@ -236,7 +238,7 @@ pub fn steady_on(model: &Model, format: Format, save_root: Option<&Path>) -> Res
         text: report.text(model),
         json: to_json(&report)?,
         csv: Some(report.csv()),
-        svg: None,
+        svg: save_root.map(|_| draw::baseline_svg(model, &state.probabilities, &obs)),
     };
     emit(model, "steady", format, save_root, rendered)
 }

@@ -237,6 +237,12 @@ const DESIGN_LDB_TOLERANCE: f64 = 1e-6;
 /// (`design`, the attaining design), checked against `model` in full: every failure names the
 /// file, the place in it and a fix.
 pub fn read_design(file: &Path, model: &Model) -> Result<Vec<Pathway>, Error> {
+    read_ranked_design(file, model, 1)
+}
+
+/// [`read_design`] of the design ranked `rank` (1 = best) in a saved `design.json`; a
+/// `bound.json` holds one design, rank 1.
+pub fn read_ranked_design(file: &Path, model: &Model, rank: usize) -> Result<Vec<Pathway>, Error> {
     let name = file.display();
     let bad = |place: &str, problem: String, fix: &str| {
         Error::Usage(format!("{name}: {place}: {problem}\n  fix: {fix}"))
@@ -277,16 +283,35 @@ pub fn read_design(file: &Path, model: &Model) -> Result<Vec<Pathway>, Error> {
             "give a design saved for this model",
         ));
     }
+    let place = format!("designs[{}]", rank.saturating_sub(1));
     let (place, design) = if let Some(designs) = value.get("designs") {
-        let first = designs.as_array().and_then(|a| a.first()).ok_or_else(|| {
-            bad(
+        let ranked = designs.as_array().map_or(0, Vec::len);
+        if ranked == 0 {
+            return Err(bad(
                 "designs",
                 "no ranked design in this file".into(),
                 "rerun `ergopath design` with a budget that admits designs, and save it",
-            )
-        })?;
-        ("designs[0]", first)
+            ));
+        }
+        let chosen = designs
+            .as_array()
+            .and_then(|a| a.get(rank.wrapping_sub(1)))
+            .ok_or_else(|| {
+                bad(
+                    "designs",
+                    format!("no design ranked {rank}: the file ranks {ranked}"),
+                    &format!("give a rank from 1 to {ranked}"),
+                )
+            })?;
+        (place.as_str(), chosen)
     } else if let Some(d) = value.get("design").filter(|d| !d.is_null()) {
+        if rank != 1 {
+            return Err(bad(
+                "design",
+                format!("a bound report holds one design (rank 1), not rank {rank}"),
+                "give rank 1, or a design.json that ranks several designs",
+            ));
+        }
         ("design", d)
     } else {
         return Err(bad(

@@ -11,6 +11,8 @@ pub mod check;
 pub mod compare;
 pub mod cycles;
 pub mod design;
+pub mod layout;
+pub mod network;
 pub mod output;
 pub mod precision;
 pub mod regimes;

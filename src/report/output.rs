@@ -302,7 +302,7 @@ const MANIFEST_FIX: &str = "remove it: the next --save writes a new one (and rep
 pub const MANIFEST_FORMAT: &str = "ergopath-results/1";
 
 /// What a results folder holds, as written by this tool: each saved report's name and its
-/// files (`<name>.txt`, `.json`, `.csv`, `.svg`). `report.md` is built from this list only,
+/// files (`<name>.txt`, `.json`, `.csv`, `.svg`, `.dot`). `report.md` is built from this list only,
 /// never from what else lies in the folder; the manifest is renamed in last, after every file
 /// it lists and `report.md`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -312,8 +312,8 @@ pub struct Manifest {
     pub reports: BTreeMap<String, Vec<String>>,
 }
 
-/// Extensions a report's files may have.
-pub const REPORT_FORMS: [&str; 4] = ["txt", "json", "csv", "svg"];
+/// Extensions a report's files may have (`dot`: the graph of a network diagram).
+pub const REPORT_FORMS: [&str; 5] = ["txt", "json", "csv", "svg", "dot"];
 
 impl Default for Manifest {
     fn default() -> Self {
@@ -370,7 +370,7 @@ impl Manifest {
                     .any(|form| *file == format!("{name}.{form}"));
                 if !ok {
                     return Err(refused(format!(
-                        "lists '{file}' for report '{name}'; a report's files are {name}.txt, .json, .csv or .svg"
+                        "lists '{file}' for report '{name}'; a report's files are {name}.txt, .json, .csv, .svg or .dot"
                     )));
                 }
             }

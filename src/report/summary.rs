@@ -39,7 +39,7 @@ pub fn report_markdown(
         if manifest.has(stem, "svg") {
             out.push_str(&format!("\n![{stem}]({stem}.svg)\n"));
         }
-        let data: Vec<String> = ["json", "csv"]
+        let data: Vec<String> = ["json", "csv", "dot"]
             .iter()
             .filter(|x| manifest.has(stem, x))
             .map(|x| format!("[{stem}.{x}]({stem}.{x})"))

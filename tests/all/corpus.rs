@@ -40,8 +40,9 @@ fn refused(path: &Path, phrase: &str, limit: Duration) {
         path.file_stem().unwrap().to_string_lossy()
     ));
     let file = path.to_str().unwrap();
-    let commands: [&[&str]; 5] = [
+    let commands: [&[&str]; 6] = [
         &["check", file],
+        &["draw", file, "--of", "design", "--save"],
         &["steady", file, "--save"],
         &["bound", file, "--save"],
         &["design", file, "--rate-cap", "10", "--save", "-q"],

@@ -6,6 +6,7 @@ mod cautions;
 mod common;
 mod corpus;
 mod design;
+mod draw;
 mod environment;
 mod errors;
 mod exact_reference;

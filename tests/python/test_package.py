@@ -2,6 +2,7 @@
 reference fixtures (cvxpy with Clarabel, written by scripts/reference.py)."""
 
 import _thread
+import subprocess
 import json
 import math
 import pathlib
@@ -12,6 +13,8 @@ import numpy as np
 import pytest
 
 import ergopath
+
+from conftest import _binary as _bin
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
 SHIPPED = sorted(p.relative_to(ROOT).as_posix() for p in (ROOT / "problems").glob("*.toml"))
@@ -48,6 +51,9 @@ def test_every_job_equals_the_cli_json(cli, at_root):
     robust = walker.design(max_pathways=1, top=3, samples=50, quantile=0.1)
     assert robust.to_dict() == cli("design", "problems/walker.toml", "--json", "--max-pathways", "1", "--top", "3", "--samples", "50", "--quantile", "0.1", "-q")
     assert len(sampled.samples_frame) == 200
+    drawn = model.draw("bound")
+    svg = subprocess.run([str(_bin()), "draw", path, "--of", "bound"], cwd=ROOT, capture_output=True, text=True).stdout
+    assert drawn.svg == svg and "digraph network" in drawn.dot
     simulated = model.simulate(5.0, runs=20, seed=3)
     assert simulated.to_dict() == cli("simulate", path, "--json", "--time", "5", "--runs", "20", "--seed", "3", "-q")
 

@@ -36,6 +36,7 @@ __all__ = [
     "Report",
     "Steady",
     "CertifiedBound",
+    "Diagram",
     "load",
     "compare",
     "reference",
@@ -434,6 +435,25 @@ class Model:
         parameter, ranked by their effect on the headroom."""
         return _run("sensitivity", [self], {"threads": threads}, save)
 
+    def draw(
+        self,
+        of: Optional[str] = None,
+        *,
+        design: Optional[Union[str, os.PathLike]] = None,
+        rank: int = 1,
+        save: Optional[Union[str, os.PathLike]] = None,
+    ) -> "Diagram":
+        """A diagram of the network (``of``: ``baseline``, ``bound`` for the optimal
+        distribution, ``design`` for the attaining design, or the design ranked ``rank`` in a
+        saved ``design.json`` given as ``design``): node areas by probability, arrows along
+        the net flux. Shows itself in a notebook; ``svg`` and ``dot`` hold both forms."""
+        settings = dict(of=of, design=None if design is None else os.fspath(design), rank=rank)
+        svg = _core.run("draw", [self._core], json.dumps({k: v for k, v in settings.items() if v is not None}), None, None)
+        dot = _core.run("draw", [self._core], json.dumps({**{k: v for k, v in settings.items() if v is not None}, "dot": True}), None, None)
+        if save is not None:
+            _core.run("draw", [self._core], json.dumps({k: v for k, v in settings.items() if v is not None}), os.fspath(save), None)
+        return Diagram(svg, dot)
+
     def simulate(
         self,
         time: float,
@@ -695,6 +715,23 @@ class CertifiedBound:
 
     def __repr__(self) -> str:
         return f"<ergopath.CertifiedBound power {self.power:.6g}, headroom {self.headroom:.6g}>"
+
+
+class Diagram:
+    """A network diagram: ``svg`` (shown inline by Jupyter) and ``dot`` (Graphviz's DOT
+    language, for your own rendering)."""
+
+    __slots__ = ("svg", "dot")
+
+    def __init__(self, svg: str, dot: str) -> None:
+        self.svg = svg
+        self.dot = dot
+
+    def _repr_svg_(self) -> str:
+        return self.svg
+
+    def __repr__(self) -> str:
+        return f"<ergopath.Diagram: {len(self.svg)} bytes of SVG>"
 
 
 class Steady:

@@ -117,6 +117,23 @@ impl SparseLu {
     }
 }
 
+impl SparseLu {
+    /// Overwrites `rhs` (n x k) with the solution of `A^T x = rhs` (the same factors).
+    pub fn solve_transpose_in_place(&self, rhs: MatMut<'_, f64>) {
+        let par = Par::Seq;
+        let mut work = MemBuffer::new(
+            self.symbolic
+                .solve_transpose_in_place_scratch::<f64>(rhs.ncols(), par),
+        );
+        LuRef::new_unchecked(&self.symbolic, &self.numeric).solve_transpose_in_place_with_conj(
+            Conj::No,
+            rhs,
+            par,
+            MemStack::new(&mut work),
+        );
+    }
+}
+
 /// A square sparse matrix in compressed rows, for matrix-vector products.
 pub struct CompressedRows {
     start: Vec<usize>,

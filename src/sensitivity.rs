@@ -11,11 +11,9 @@
 //! report. Owns the perturbation of a network by one parameter; it must not print or read
 //! files.
 
-use crate::bound::objective::Objective;
 use crate::bound::Bound;
 use crate::model::{Channel, Model, Network};
 use crate::steady::{self, SolveError, SteadySettings};
-use rayon::prelude::*;
 
 /// Kind of a model parameter.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
@@ -55,9 +53,6 @@ pub struct Sensitivity {
     pub d_power: Derivative,
     pub d_bound: Derivative,
 }
-
-/// Largest network analysed: each parameter costs four steady-state solves.
-pub const SENSITIVITY_LIMIT: usize = 400;
 
 /// The parameters of `model`, in the order: rates, energies, work labels, drives, temperature.
 pub fn parameters(model: &Model) -> Vec<Parameter> {
@@ -115,61 +110,301 @@ pub fn perturbed(network: &Network, p: Parameter, h: f64, temperature: f64) -> N
     Network { energies, channels }
 }
 
-/// Central difference of `f` at step `h` and `h/2`: the Richardson value and the difference
-/// of the two as its error estimate; `None` when `f` fails at a step.
-fn differentiate(f: impl Fn(f64) -> Option<f64>, h: f64) -> Option<Derivative> {
-    let central = |h: f64| Some((f(h)? - f(-h)?) / (2.0 * h));
-    let (coarse, fine) = (central(h)?, central(h / 2.0)?);
-    let value = (4.0 * fine - coarse) / 3.0;
-    value.is_finite().then(|| Derivative {
-        value,
-        error: (fine - coarse).abs(),
-    })
-}
-
-/// Step of each kind: 1e-3 in `ln k` or kT (small against every rate and label scale that the
-/// curvature could have, large against round-off), 1e-3 of the temperature.
-fn step(kind: ParameterKind, temperature: f64) -> f64 {
+/// How one parameter moves the net flux of one channel at a fixed distribution `q`: the
+/// derivative of `J_c = f q_from - b q_to` (rates at fixed affinity scale both; a work label,
+/// a drive or an energy moves the backward rate by LDB, `b = f exp(-(E_from - E_to + d - w))`).
+/// `b_q` is `b q_to`.
+fn flux_derivative(kind: ParameterKind, j: f64, b_q: f64, at_from: bool) -> f64 {
     match kind {
-        ParameterKind::Temperature => 1e-3 * temperature,
-        _ => 1e-3,
+        ParameterKind::Rate => j,
+        ParameterKind::Work => -b_q,
+        ParameterKind::Drive => b_q,
+        ParameterKind::Energy if at_from => b_q,
+        ParameterKind::Energy => -b_q,
+        ParameterKind::Temperature => 0.0,
     }
 }
 
-/// Every parameter's derivatives of the baseline power and of the certified bound `bound`.
+/// The derivative of `F(q) = sum_c J_c (u_c + explicit_c)` with respect to every parameter at
+/// fixed `q`, where `u_c` multiplies the flux change and `explicit` says how the channel's own
+/// factor moves with the parameter (`d u_c / d theta`); each is returned with the sum of the
+/// magnitudes of its terms (for its round-off).
+struct Linearised<'a> {
+    network: &'a Network,
+    /// `J_c` and `b_c q_to` at `q`.
+    flux: Vec<f64>,
+    backward_inflow: Vec<f64>,
+    /// `u_c`.
+    weight: Vec<f64>,
+    /// `J_c d u_c / d w_c`: 1 for the power (u = w) and for the bound (u = w + Delta).
+    work_explicit: f64,
+    /// `d u_c / d E_from` (and minus it for `E_to`): 0 for the power, -1 for the bound.
+    energy_explicit: f64,
+}
+
+impl<'a> Linearised<'a> {
+    /// The derivative's terms of channel `c` for a parameter of `kind` acting at its `from`
+    /// end (or at its `to` end, for an energy).
+    fn term(&self, kind: ParameterKind, c: usize, at_from: bool) -> f64 {
+        let d_j = flux_derivative(kind, self.flux[c], self.backward_inflow[c], at_from);
+        let explicit = match kind {
+            ParameterKind::Work => self.work_explicit * self.flux[c],
+            ParameterKind::Energy if at_from => self.energy_explicit * self.flux[c],
+            ParameterKind::Energy => -self.energy_explicit * self.flux[c],
+            _ => 0.0,
+        };
+        self.weight[c] * d_j + explicit
+    }
+
+    /// Every state energy's derivative `(value, sum of magnitudes)`, in one pass over the
+    /// channels (each channel moves the energies at its two ends).
+    fn energy_derivatives(&self) -> Vec<(f64, f64)> {
+        let mut out = vec![(0.0, 0.0); self.network.len()];
+        for (c, ch) in self.network.channels.iter().enumerate() {
+            for (state, at_from) in [(ch.from, true), (ch.to, false)] {
+                let t = self.term(ParameterKind::Energy, c, at_from);
+                out[state].0 += t;
+                out[state].1 += t.abs();
+            }
+        }
+        out
+    }
+
+    /// Every parameter's derivative `(value, sum of magnitudes)`, in the order of
+    /// [`parameters`]. The temperature derivative is at fixed forward rates: energies and
+    /// labels in kT scale as `T0 / T`, so `dF/dT = -sum_x (dF/dx) x / T0` over every energy,
+    /// work label and drive.
+    fn all(&self, parameters: &[Parameter], temperature: f64) -> Vec<(f64, f64)> {
+        let net = self.network;
+        let energy = self.energy_derivatives();
+        let single = |kind, c: usize| {
+            let t = self.term(kind, c, true);
+            (t, t.abs())
+        };
+        let of = |p: &Parameter| match p.kind {
+            ParameterKind::Energy => energy[p.index],
+            ParameterKind::Temperature => {
+                let scaled =
+                    |(v, m): (f64, f64), x: f64| (-v * x / temperature, m * x.abs() / temperature);
+                let energies = (0..net.len()).map(|k| scaled(energy[k], net.energies[k]));
+                let labels = net.channels.iter().enumerate().flat_map(|(c, ch)| {
+                    [
+                        scaled(single(ParameterKind::Work, c), ch.work),
+                        scaled(single(ParameterKind::Drive, c), ch.drive),
+                    ]
+                });
+                energies
+                    .chain(labels)
+                    .fold((0.0, 0.0), |(v, m), (a, b)| (v + a, m + b))
+            }
+            kind => single(kind, p.index),
+        };
+        parameters.iter().map(of).collect()
+    }
+}
+
+/// `J_c` and `b_c q_to` of every channel at `q`.
+fn fluxes_at(network: &Network, q: &[f64]) -> (Vec<f64>, Vec<f64>) {
+    network
+        .channels
+        .iter()
+        .map(|c| (c.flux(q), c.backward * q[c.to]))
+        .unzip()
+}
+
+/// The adjoint of the steady state: `lambda` with `R^T lambda = g - (g . p) 1`, `g` the
+/// gradient of the power in `p` (`g_k = sum_c w_c (f_c [k = from] - b_c [k = to])`), and
+/// `lambda` zero at the most probable state; with one refinement step, whose correction is
+/// returned as the error estimate of each component. Then `dP/dtheta = sum_c (w_c - lambda_to +
+/// lambda_from) dJ_c/dtheta` at fixed `p` (methods, section 10).
+fn adjoint(
+    network: &Network,
+    p: &[f64],
+    factors: &steady::Factors,
+) -> Result<(Vec<f64>, Vec<f64>), SolveError> {
+    let n = network.len();
+    let mut g = vec![0.0; n];
+    for c in &network.channels {
+        g[c.from] += c.work * c.forward;
+        g[c.to] -= c.work * c.backward;
+    }
+    let gp: f64 = g.iter().zip(p).map(|(g, p)| g * p).sum();
+    let h: Vec<f64> = g.iter().map(|g| g - gp).collect();
+    // The sparse steady solve's own factors solve the transposed system; after the dense
+    // elimination (at most a few hundred states) a sparse LU of R^T is factored here.
+    let own = match factors {
+        steady::Factors::Sparse { .. } => None,
+        steady::Factors::Gth { .. } => Some(transposed_lu(network, p)?),
+    };
+    let solve = |rhs: &[f64]| -> Vec<f64> {
+        match &own {
+            Some((lu, reference)) => solve_reduced(lu, *reference, rhs),
+            None => factors.solve_transposed(rhs).unwrap_or_default(),
+        }
+    };
+    let residual = |lambda: &[f64]| -> Vec<f64> {
+        let mut r = h.clone();
+        for c in &network.channels {
+            let d = lambda[c.to] - lambda[c.from];
+            r[c.from] -= c.forward * d;
+            r[c.to] += c.backward * d;
+        }
+        r
+    };
+    let mut lambda = solve(&h);
+    let correction = solve(&residual(&lambda));
+    if lambda.len() != n || correction.len() != n {
+        return Err(SolveError::Unresolved(
+            "the adjoint of the steady state could not be solved".into(),
+        ));
+    }
+    lambda
+        .iter_mut()
+        .zip(&correction)
+        .for_each(|(l, d)| *l += d);
+    if lambda.iter().any(|l| !l.is_finite()) {
+        return Err(SolveError::Unresolved(
+            "the adjoint of the steady state is not finite; fix: rescale the rates that span many decades".into(),
+        ));
+    }
+    Ok((lambda, correction))
+}
+
+/// A sparse LU of `R^T` with the most probable state's row and column removed (its `lambda`
+/// is zero).
+fn transposed_lu(
+    network: &Network,
+    p: &[f64],
+) -> Result<(crate::linalg::SparseLu, usize), SolveError> {
+    let n = network.len();
+    let reference = (0..n).max_by(|&a, &b| p[a].total_cmp(&p[b])).unwrap_or(0);
+    let reduced = |k: usize| if k < reference { k } else { k - 1 };
+    let mut triplets = Vec::with_capacity(4 * network.channels.len());
+    let mut push = |row: usize, col: usize, v: f64| {
+        if row != reference && col != reference {
+            triplets.push(faer::sparse::Triplet::new(reduced(row), reduced(col), v));
+        }
+    };
+    // Row j of R^T: sum over jumps j -> i of rate (lambda_i - lambda_j).
+    for c in &network.channels {
+        push(c.from, c.to, c.forward);
+        push(c.from, c.from, -c.forward);
+        push(c.to, c.from, c.backward);
+        push(c.to, c.to, -c.backward);
+    }
+    Ok((
+        crate::linalg::SparseLu::factor(n - 1, &triplets)?,
+        reference,
+    ))
+}
+
+/// `A y = b` for a reduced system without state `reference` (whose `y` is zero).
+fn solve_reduced(lu: &crate::linalg::SparseLu, reference: usize, rhs: &[f64]) -> Vec<f64> {
+    let n = rhs.len();
+    let mut x =
+        faer::Mat::<f64>::from_fn(n - 1, 1, |r, _| rhs[if r < reference { r } else { r + 1 }]);
+    lu.solve_in_place(x.as_mut());
+    (0..n)
+        .map(|k| match k.cmp(&reference) {
+            std::cmp::Ordering::Less => x[(k, 0)],
+            std::cmp::Ordering::Equal => 0.0,
+            std::cmp::Ordering::Greater => x[(k - 1, 0)],
+        })
+        .collect()
+}
+
+/// Every parameter's derivatives of the baseline power (adjoint of the steady state: one
+/// transposed solve for all parameters) and of the certified bound `bound` (envelope theorem:
+/// the explicit derivative of `Phi` at `p*`, one pass over the channels per parameter).
+/// Errors: the adjoint's refinement correction carried through, and for the bound the
+/// first-order effect of `p*` being optimal only to the certified gap (`sqrt(gap)` relative to
+/// the terms), each plus round-off of the sums.
 pub fn analyse(model: &Model, bound: &Bound) -> Result<Vec<Sensitivity>, SolveError> {
     let network = &model.network;
-    if network.len() > SENSITIVITY_LIMIT {
-        return Err(SolveError::Unresolved(format!(
-            "{} states: sensitivities cost four steady-state solves per parameter and are computed up to {SENSITIVITY_LIMIT} states; fix: analyse a reduced model",
-            network.len()
-        )));
-    }
     let t = model.units.temperature;
-    let power = |net: &Network| -> Option<f64> {
-        let p = steady::solve(net, &SteadySettings::default())
-            .ok()?
-            .probabilities;
-        Some(steady::observe(net, &p).power)
+    let (state, factors) = steady::solve_factored(network, &SteadySettings::default())?;
+    let p = state.probabilities;
+    let (lambda, correction) = adjoint(network, &p, &factors)?;
+    let (flux, backward_inflow) = fluxes_at(network, &p);
+    let difference = |v: &[f64], c: &Channel| v[c.to] - v[c.from];
+    let power = Linearised {
+        network,
+        flux,
+        backward_inflow,
+        weight: network
+            .channels
+            .iter()
+            .map(|c| c.work - difference(&lambda, c))
+            .collect(),
+        work_explicit: 1.0,
+        energy_explicit: 0.0,
     };
-    let envelope = |net: &Network| Objective::new(net).value(&bound.p, &bound.log_p);
-    parameters(model)
-        .into_par_iter()
-        .map(|parameter| {
-            let h = step(parameter.kind, t);
-            let moved = |x: f64| perturbed(network, parameter, x, t);
-            let d_power = differentiate(|x| power(&moved(x)), h);
-            let d_bound = differentiate(|x| Some(envelope(&moved(x))), h);
-            match (d_power, d_bound) {
-                (Some(d_power), Some(d_bound)) => Ok(Sensitivity {
+    // The same sums with the refinement correction in place of the weights bound the error the
+    // adjoint leaves.
+    let power_error = Linearised {
+        weight: network
+            .channels
+            .iter()
+            .map(|c| difference(&correction, c).abs())
+            .collect(),
+        work_explicit: 0.0,
+        ..Linearised {
+            network,
+            flux: power.flux.iter().map(|j| j.abs()).collect(),
+            backward_inflow: power.backward_inflow.clone(),
+            weight: Vec::new(),
+            work_explicit: 0.0,
+            energy_explicit: 0.0,
+        }
+    };
+    let (flux, backward_inflow) = fluxes_at(network, &bound.p);
+    let log_p = &bound.log_p;
+    let envelope = Linearised {
+        network,
+        flux,
+        backward_inflow,
+        weight: network
+            .channels
+            .iter()
+            .map(|c| {
+                c.work + log_p[c.to] + network.energies[c.to]
+                    - log_p[c.from]
+                    - network.energies[c.from]
+            })
+            .collect(),
+        work_explicit: 1.0,
+        energy_explicit: -1.0,
+    };
+    let gap = bound.relative_gap().sqrt();
+    let eps = 16.0 * f64::EPSILON;
+    let all = parameters(model);
+    let (powers, errors, bounds) = (
+        power.all(&all, t),
+        power_error.all(&all, t),
+        envelope.all(&all, t),
+    );
+    all.iter()
+        .zip(powers.iter().zip(&errors).zip(&bounds))
+        .map(|(&parameter, ((&(dp, dp_terms), &(_, dp_adjoint)), &(db, db_terms)))| {
+            let d_power = Derivative {
+                value: dp,
+                error: dp_adjoint + eps * dp_terms,
+            };
+            let d_bound = Derivative {
+                value: db,
+                error: (gap + eps) * db_terms,
+            };
+            if d_power.value.is_finite() && d_bound.value.is_finite() {
+                Ok(Sensitivity {
                     parameter,
                     d_power,
                     d_bound,
-                }),
-                _ => Err(SolveError::Unresolved(format!(
-                    "a steady state moved by one parameter ({:?} {}) could not be solved; fix: rescale the rates that span many decades",
+                })
+            } else {
+                Err(SolveError::Unresolved(format!(
+                    "the derivative with respect to {:?} {} is not finite; fix: rescale the rates that span many decades",
                     parameter.kind, parameter.index
-                ))),
+                )))
             }
         })
         .collect()

@@ -126,6 +126,29 @@ impl Factors {
     }
 }
 
+impl Factors {
+    /// `R^T y = b` with the same factors, `y` zero at the eliminated reference state, for the
+    /// sparse factorisation (`None` for the dense elimination, which is not kept in a form
+    /// that solves the transposed system).
+    pub fn solve_transposed(&self, b: &[f64]) -> Option<Vec<f64>> {
+        let Factors::Sparse { lu, reference } = self else {
+            return None;
+        };
+        let (n, reference) = (b.len(), *reference);
+        let mut x = Mat::<f64>::from_fn(n - 1, 1, |r, _| b[if r < reference { r } else { r + 1 }]);
+        lu.solve_transpose_in_place(x.as_mut());
+        Some(
+            (0..n)
+                .map(|i| match i.cmp(&reference) {
+                    std::cmp::Ordering::Less => x[(i, 0)],
+                    std::cmp::Ordering::Equal => 0.0,
+                    std::cmp::Ordering::Greater => x[(i - 1, 0)],
+                })
+                .collect(),
+        )
+    }
+}
+
 /// [`solve`], keeping the factorisation of the generator for further solves.
 pub fn solve_factored(
     network: &Network,

@@ -11,7 +11,7 @@ use serde::Serialize;
 
 /// One parameter's derivatives in the model's units: powers in the model's power unit, per unit
 /// of the parameter (per e-fold for rates, per energy unit for energies and labels, per kelvin
-/// for the temperature). `*_error` is the Richardson estimate of each derivative's error.
+/// for the temperature). `*_error` is each derivative's error bound (methods, section 10).
 #[derive(Debug, Clone, Serialize)]
 pub struct ParameterJson {
     pub kind: ParameterKind,
@@ -111,6 +111,8 @@ impl SensitivityReport {
 
     pub fn text(&self) -> String {
         let (p, e) = (&self.units.power, &self.units.energy);
+        // More rows than a reader scans; the machine forms keep all of them.
+        const TEXT_ROWS: usize = 60;
         let mut out = format!(
             "Sensitivities of {}\n  baseline power {} {p}, universal bound {} {p}\n  derivatives in {p} per e-fold of a rate (forward and backward together), per {e} of\n  an energy or label, per kelvin; ranked by the change of the headroom per e-fold of a rate,\n  per kT of an energy or label, per kelvin\n\n",
             self.title,
@@ -125,7 +127,7 @@ impl SensitivityReport {
             ("per e-fold/kT/K", Align::Right),
             ("elasticity of bound", Align::Right),
         ]);
-        for q in &self.parameters {
+        for q in self.parameters.iter().take(TEXT_ROWS) {
             table.row(vec![
                 q.name.clone(),
                 bounded(q.d_bound, q.d_bound_error),
@@ -136,11 +138,17 @@ impl SensitivityReport {
             ]);
         }
         out.push_str(&table.render());
+        if self.parameters.len() > TEXT_ROWS {
+            out.push_str(&format!(
+                "  ... {} more parameters of smaller effect: every one is in --json and --csv\n",
+                self.parameters.len() - TEXT_ROWS
+            ));
+        }
         if self.joint_chain {
             out.push_str(&super::table::wrap("This model has environments: each parameter is one copy in the joint chain (state@environment), moved alone; a physical parameter shared by all copies moves them together, the sum of their derivatives.", "  ", 78));
             out.push('\n');
         }
-        out.push_str(&super::table::wrap("The bound's derivative is the envelope theorem's: the derivative of Phi at the certified optimum held fixed (methods, section 10); each derivative is a Richardson central difference whose estimated error is shown where it exceeds 1%. Derivatives are local: a factor of 2 to 10 in a rate is not a small change, and a real design needs experimental validation.", "  ", 78));
+        out.push_str(&super::table::wrap("The bound's derivative is the envelope theorem's: the derivative of Phi at the certified optimum held fixed; the power's is the adjoint of the steady state (one transposed solve for every parameter; methods, section 10). Each derivative's error bound is shown where it exceeds 1%. Derivatives are local: a factor of 2 to 10 in a rate is not a small change, and a real design needs experimental validation.", "  ", 78));
         out.push('\n');
         out
     }

@@ -4,7 +4,8 @@
 # design where [pathways] sets rate_cap), the ranked designs within the model's [pathways]
 # budget and a sweep of the rate cap, network diagrams (baseline, the bound's optimal
 # distribution, its attaining design and the three best ranked designs); then a comparison of
-# all the models.
+# all the models. Every --save also rebuilds the folder's report.md and report.html; last, a
+# screenshot of each model's page goes to results/<model>/report.png (skipped without chromium).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 cargo build --release --quiet
@@ -37,3 +38,18 @@ $bin uncertainty problems/walker.toml --samples 1000 --seed 7 --save --quiet > /
 echo "results/walker/uncertainty regenerated"
 $bin compare problems/*.toml --save --quiet > /dev/null
 echo "results/compare/ regenerated"
+# Screenshots of each model's report.html (headless Chromium; the page is self-contained).
+browser=$(command -v chromium || command -v chromium-browser || true)
+if [ -z "$browser" ]; then
+  echo "note: chromium not found, results/*/report.png not regenerated"
+else
+  profile=$(mktemp -d)
+  for model in problems/*.toml; do
+    name=$(basename "$model" .toml)
+    "$browser" --headless=new --disable-gpu --no-sandbox --no-first-run --user-data-dir="$profile" \
+      --hide-scrollbars --window-size=1200,2400 --screenshot="$PWD/results/$name/report.png" \
+      "file://$PWD/results/$name/report.html" > /dev/null 2>&1
+  done
+  rm -rf "$profile"
+  echo "results/*/report.png regenerated"
+fi

@@ -88,9 +88,10 @@ pub fn folder_name(model: &Model) -> String {
 }
 
 /// Writes the forms of report `report` (each `(file name, contents)`) into `root/<folder>/` as
-/// one set, with the folder's `report.md` and `manifest.json`, and returns a line naming what
-/// was written. The folder is locked meanwhile; every file is staged before any is renamed
-/// into place, so an error leaves the previous set whole, and the manifest is renamed last.
+/// one set, with the folder's `report.md`, `report.html` and `manifest.json`, and returns a
+/// line naming what was written. The folder is locked meanwhile; every file is staged before
+/// any is renamed into place, so an error leaves the previous set whole, and the manifest is
+/// renamed last.
 fn save(
     root: &Path,
     folder: &str,
@@ -143,6 +144,22 @@ fn save(
         summary.as_bytes(),
     )?);
     written.push(summary_path.display().to_string());
+    // report.html from the same list: this save's files as given, the others read back.
+    let mut listed = |name: &str| match files.iter().find(|(n, _)| *n == name) {
+        Some((_, contents)) => Ok(Some(contents.to_string())),
+        None => output::read_back(&dir.join(name)),
+    };
+    let html =
+        crate::report::html::report_html(title, &manifest, &mut listed).map_err(|source| {
+            OutputError::Write {
+                path: dir.clone(),
+                source,
+            }
+        })?;
+    let html_path = dir.join("report.html");
+    let html = output::printable(&html);
+    staged.push(output::stage_in_set(&lock, &html_path, html.as_bytes())?);
+    written.push(html_path.display().to_string());
     staged.push(output::stage_in_set(
         &lock,
         &dir.join(MANIFEST),

@@ -11,6 +11,7 @@ pub mod check;
 pub mod compare;
 pub mod cycles;
 pub mod design;
+pub mod html;
 pub mod layout;
 pub mod network;
 pub mod output;

@@ -6,8 +6,8 @@
 //! link is never followed and an error leaves nothing partial behind (the temporary file is
 //! removed on every error path). The results folder and its per-model folders are created here
 //! and refused when they are symbolic links; a saved result set (the forms of one report, the
-//! folder's `report.md` and its `manifest.json`) is staged whole and renamed into place while
-//! the folder is locked, so concurrent saves never interleave.
+//! folder's `report.md`, `report.html` and its `manifest.json`) is staged whole and renamed
+//! into place while the folder is locked, so concurrent saves never interleave.
 
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -302,9 +302,9 @@ const MANIFEST_FIX: &str = "remove it: the next --save writes a new one (and rep
 pub const MANIFEST_FORMAT: &str = "ergopath-results/1";
 
 /// What a results folder holds, as written by this tool: each saved report's name and its
-/// files (`<name>.txt`, `.json`, `.csv`, `.svg`, `.dot`). `report.md` is built from this list only,
-/// never from what else lies in the folder; the manifest is renamed in last, after every file
-/// it lists and `report.md`.
+/// files (`<name>.txt`, `.json`, `.csv`, `.svg`, `.dot`). `report.md` and `report.html` are
+/// built from this list only, never from what else lies in the folder; the manifest is renamed
+/// in last, after every file it lists and both reports.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Manifest {

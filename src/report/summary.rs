@@ -8,18 +8,14 @@ use super::output::Manifest;
 /// Order in which reports appear (others follow alphabetically).
 const ORDER: [&str; 4] = ["steady", "bound", "design", "sweep"];
 
-/// The markdown report of the reports `manifest` lists, titled with the model's title.
-/// `text_of(name)` gives the text report `<name>.txt` (`None`: the report is left out).
-pub fn report_markdown(
-    title: &str,
-    manifest: &Manifest,
-    text_of: &mut dyn FnMut(&str) -> std::io::Result<Option<String>>,
-) -> std::io::Result<String> {
+/// The reports `manifest` lists that `keep` accepts, in the order of the results pages
+/// ([`ORDER`], then alphabetical).
+pub(crate) fn ordered_stems(manifest: &Manifest, keep: impl Fn(&str) -> bool) -> Vec<&str> {
     let mut stems: Vec<&str> = manifest
         .reports
         .keys()
         .map(String::as_str)
-        .filter(|name| manifest.has(name, "txt"))
+        .filter(|name| keep(name))
         .collect();
     let rank = |s: &str| {
         ORDER
@@ -28,6 +24,17 @@ pub fn report_markdown(
             .unwrap_or(ORDER.len())
     };
     stems.sort_by(|a, b| rank(a).cmp(&rank(b)).then_with(|| a.cmp(b)));
+    stems
+}
+
+/// The markdown report of the reports `manifest` lists, titled with the model's title.
+/// `text_of(name)` gives the text report `<name>.txt` (`None`: the report is left out).
+pub fn report_markdown(
+    title: &str,
+    manifest: &Manifest,
+    text_of: &mut dyn FnMut(&str) -> std::io::Result<Option<String>>,
+) -> std::io::Result<String> {
+    let stems = ordered_stems(manifest, |name| manifest.has(name, "txt"));
     let mut out = format!(
         "# Results: {title}\n\nWritten by ergopath beside the JSON and CSV files of this folder; each section is one saved report.\n"
     );

@@ -19,6 +19,7 @@ mod precision;
 mod published;
 mod reference;
 mod regimes;
+mod report_html;
 mod resume;
 mod safe_files;
 mod sensitivity;

@@ -300,17 +300,7 @@ fn transposed_lu(
 
 /// `A y = b` for a reduced system without state `reference` (whose `y` is zero).
 fn solve_reduced(lu: &crate::linalg::SparseLu, reference: usize, rhs: &[f64]) -> Vec<f64> {
-    let n = rhs.len();
-    let mut x =
-        faer::Mat::<f64>::from_fn(n - 1, 1, |r, _| rhs[if r < reference { r } else { r + 1 }]);
-    lu.solve_in_place(x.as_mut());
-    (0..n)
-        .map(|k| match k.cmp(&reference) {
-            std::cmp::Ordering::Less => x[(k, 0)],
-            std::cmp::Ordering::Equal => 0.0,
-            std::cmp::Ordering::Greater => x[(k - 1, 0)],
-        })
-        .collect()
+    steady::on_reduced(reference, rhs, |x| lu.solve_in_place(x))
 }
 
 /// Every parameter's derivatives of the baseline power (adjoint of the steady state: one
@@ -342,20 +332,16 @@ pub fn analyse(model: &Model, bound: &Bound) -> Result<Vec<Sensitivity>, SolveEr
     // The same sums with the refinement correction in place of the weights bound the error the
     // adjoint leaves.
     let power_error = Linearised {
+        network,
+        flux: power.flux.iter().map(|j| j.abs()).collect(),
+        backward_inflow: power.backward_inflow.clone(),
         weight: network
             .channels
             .iter()
             .map(|c| difference(&correction, c).abs())
             .collect(),
         work_explicit: 0.0,
-        ..Linearised {
-            network,
-            flux: power.flux.iter().map(|j| j.abs()).collect(),
-            backward_inflow: power.backward_inflow.clone(),
-            weight: Vec::new(),
-            work_explicit: 0.0,
-            energy_explicit: 0.0,
-        }
+        energy_explicit: 0.0,
     };
     let (flux, backward_inflow) = fluxes_at(network, &bound.p);
     let log_p = &bound.log_p;

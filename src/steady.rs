@@ -110,17 +110,7 @@ impl Factors {
                 y
             }
             Factors::Sparse { lu, reference } => {
-                let (n, reference) = (b.len(), *reference);
-                let mut x =
-                    Mat::<f64>::from_fn(n - 1, 1, |r, _| b[if r < reference { r } else { r + 1 }]);
-                lu.solve_in_place(x.as_mut());
-                (0..n)
-                    .map(|i| match i.cmp(&reference) {
-                        std::cmp::Ordering::Less => x[(i, 0)],
-                        std::cmp::Ordering::Equal => 0.0,
-                        std::cmp::Ordering::Greater => x[(i - 1, 0)],
-                    })
-                    .collect()
+                on_reduced(*reference, b, |x| lu.solve_in_place(x))
             }
         }
     }
@@ -134,19 +124,29 @@ impl Factors {
         let Factors::Sparse { lu, reference } = self else {
             return None;
         };
-        let (n, reference) = (b.len(), *reference);
-        let mut x = Mat::<f64>::from_fn(n - 1, 1, |r, _| b[if r < reference { r } else { r + 1 }]);
-        lu.solve_transpose_in_place(x.as_mut());
-        Some(
-            (0..n)
-                .map(|i| match i.cmp(&reference) {
-                    std::cmp::Ordering::Less => x[(i, 0)],
-                    std::cmp::Ordering::Equal => 0.0,
-                    std::cmp::Ordering::Greater => x[(i - 1, 0)],
-                })
-                .collect(),
-        )
+        Some(on_reduced(*reference, b, |x| {
+            lu.solve_transpose_in_place(x)
+        }))
     }
+}
+
+/// Solves a system reduced by one state: `b` without component `reference` goes to `solve`
+/// (which overwrites it with the solution), and the solution comes back with a zero there.
+pub fn on_reduced(
+    reference: usize,
+    b: &[f64],
+    solve: impl FnOnce(faer::MatMut<'_, f64>),
+) -> Vec<f64> {
+    let n = b.len();
+    let mut x = Mat::<f64>::from_fn(n - 1, 1, |r, _| b[if r < reference { r } else { r + 1 }]);
+    solve(x.as_mut());
+    (0..n)
+        .map(|i| match i.cmp(&reference) {
+            std::cmp::Ordering::Less => x[(i, 0)],
+            std::cmp::Ordering::Equal => 0.0,
+            std::cmp::Ordering::Greater => x[(i - 1, 0)],
+        })
+        .collect()
 }
 
 /// [`solve`], keeping the factorisation of the generator for further solves.

@@ -112,9 +112,15 @@ pub(crate) fn robust_ranking(
     if model.uncertainty.is_none() {
         return Err(no_uncertainty(model));
     }
-    let (scores, used) = knobs.in_pool(|| {
-        stage::rank_designs(model, designs, q, knobs.seed, samples, &knobs.control)
-    })??;
+    let ranked = knobs
+        .in_pool(|| stage::rank_designs(model, designs, q, knobs.seed, samples, &knobs.control))?;
+    // A stop on request is an interruption (exit 130, KeyboardInterrupt), not a failed solve.
+    if knobs.control.stop_requested() {
+        return Err(Error::Interrupted(
+            "interrupted on request: nothing was printed or saved".into(),
+        ));
+    }
+    let (scores, used) = ranked?;
     let u = &model.units;
     Ok(RobustRankingJson {
         samples,

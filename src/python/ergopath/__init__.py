@@ -447,12 +447,18 @@ class Model:
         distribution, ``design`` for the attaining design, or the design ranked ``rank`` in a
         saved ``design.json`` given as ``design``): node areas by probability, arrows along
         the net flux. Shows itself in a notebook; ``svg`` and ``dot`` hold both forms."""
-        settings = dict(of=of, design=None if design is None else os.fspath(design), rank=rank)
-        svg = _core.run("draw", [self._core], json.dumps({k: v for k, v in settings.items() if v is not None}), None, None)
-        dot = _core.run("draw", [self._core], json.dumps({**{k: v for k, v in settings.items() if v is not None}, "dot": True}), None, None)
+        given = {"rank": rank}
+        if of is not None:
+            given["of"] = of
+        if design is not None:
+            given["design"] = os.fspath(design)
+
+        def drawn(dot: bool, save_to: Optional[str] = None) -> str:
+            return _core.run("draw", [self._core], json.dumps({**given, "dot": dot}), save_to, None)
+
         if save is not None:
-            _core.run("draw", [self._core], json.dumps({k: v for k, v in settings.items() if v is not None}), os.fspath(save), None)
-        return Diagram(svg, dot)
+            drawn(False, os.fspath(save))
+        return Diagram(drawn(False), drawn(True))
 
     def simulate(
         self,

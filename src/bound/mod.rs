@@ -123,6 +123,8 @@ pub fn routability(objective: &Objective, pairs: &PairSelection) -> Constraints 
     rows.pop();
     Constraints {
         rows: rows.into_iter().map(|r| r.into_iter().collect()).collect(),
+        group_of,
+        groups: groups.len(),
     }
 }
 

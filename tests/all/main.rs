@@ -1,6 +1,7 @@
 //! All integration tests, one binary grouped by topic.
 
 mod bound;
+mod bound_reference;
 mod budget_units;
 mod cautions;
 mod common;

@@ -67,7 +67,9 @@ pub fn linear_spaced(lo: f64, hi: f64, points: usize) -> Vec<f64> {
         let (l, h) = (scale(m1, e1 - e)?, scale(m2, e2 - e)?);
         let n = l.checked_mul(steps - i)?.checked_add(h.checked_mul(i)?)?;
         // n / steps * 10^e, as decimal digits: n 10^p / steps with p filling 30 digits.
-        let p = 30i64.saturating_sub(n.checked_ilog10().unwrap_or(0) as i64).max(0);
+        let p = 30i64
+            .saturating_sub(n.checked_ilog10().unwrap_or(0) as i64)
+            .max(0);
         let q = n.checked_mul(10i128.checked_pow(u32::try_from(p).ok()?)?)? / steps;
         format!("{q}e{}", e - p).parse().ok()
     };
@@ -75,8 +77,7 @@ pub fn linear_spaced(lo: f64, hi: f64, points: usize) -> Vec<f64> {
         .map(|i| match i {
             0 => lo,
             i if i + 1 == points => hi,
-            i => exact(i as i128)
-                .unwrap_or_else(|| lo + (hi - lo) * i as f64 / steps as f64),
+            i => exact(i as i128).unwrap_or_else(|| lo + (hi - lo) * i as f64 / steps as f64),
         })
         .collect()
 }
@@ -275,7 +276,10 @@ mod tests {
         for (i, x) in half.iter().enumerate() {
             if i % 2 == 0 {
                 assert_eq!(*x, 10f64.powi(i as i32 / 2));
-                assert_eq!(crate::report::csv::number(*x), format!("{}", 10f64.powi(i as i32 / 2)));
+                assert_eq!(
+                    crate::report::csv::number(*x),
+                    format!("{}", 10f64.powi(i as i32 / 2))
+                );
             } else {
                 let want: f64 = format!("{}e{}", 10f64.sqrt(), i / 2).parse().unwrap();
                 assert!((x - want).abs() <= 2.0 * f64::EPSILON * want, "{x} {want}");
@@ -290,15 +294,15 @@ mod tests {
 
     #[test]
     fn linear_grids_are_the_nearest_doubles_to_their_decimal_points() {
-        assert_eq!(
-            linear_spaced(0.1, 0.5, 5),
-            vec![0.1, 0.2, 0.3, 0.4, 0.5]
-        );
+        assert_eq!(linear_spaced(0.1, 0.5, 5), vec![0.1, 0.2, 0.3, 0.4, 0.5]);
         assert_eq!(
             linear_spaced(1.0, 10.0, 10),
             (1..=10).map(f64::from).collect::<Vec<_>>()
         );
         assert_eq!(linear_spaced(1.0, 2.0, 4)[1], 4.0 / 3.0);
-        assert_eq!(linear_spaced(0.5, 3.0, 6), vec![0.5, 1.0, 1.5, 2.0, 2.5, 3.0]);
+        assert_eq!(
+            linear_spaced(0.5, 3.0, 6),
+            vec![0.5, 1.0, 1.5, 2.0, 2.5, 3.0]
+        );
     }
 }

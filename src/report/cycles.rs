@@ -107,7 +107,7 @@ pub fn cycles_csv(model: &Model, cycles: &[CycleJson]) -> String {
     let (e, t) = (model.units.energy.name(), model.units.time.name());
     let mut table = Csv::new(&[
         "cycle".to_string(),
-        with_unit("affinity", "kT"),
+        with_unit("affinity_kt", "kT"),
         with_unit("affinity", e),
         with_unit("work_per_turn", e),
         with_unit("drive_per_turn", e),

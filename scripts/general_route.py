@@ -214,12 +214,12 @@ def our_timings(steady_sizes, bound_sizes, runs):
                         "--bound-sizes", ",".join(map(str, bound_sizes or [100])),
                         "--runs", str(runs), "--design-states", "0", "--out", tmp],
                        check=True, capture_output=True)
-        steady = {(r["family"], int(r["states"])): float(r["median_seconds"])
+        steady = {(r["family"], int(r["states"])): float(r["median [s]"])
                   for r in csv.DictReader(open(Path(tmp) / "steady.csv"))}
         bound = {}
         for r in csv.DictReader(open(Path(tmp) / "bound.csv")):
             key = (r["family"], int(r["states"]))
-            seconds = float(r["median_seconds"])
+            seconds = float(r["median [s]"])
             bound[key] = min(bound.get(key, seconds), seconds)
     return steady, bound
 
@@ -274,7 +274,7 @@ def main():
     out = ROOT / "results" / "bench" / "general.csv"
     with open(out, "w", newline="") as f:
         w = csv.writer(f)
-        w.writerow(["family", "states", "task", "ours_seconds", "theirs_seconds", "ratio", "their_outcome"])
+        w.writerow(["family", "states", "task", "ours [s]", "theirs [s]", "ratio", "their_outcome"])
         w.writerows(rows)
     print(f"{'family':14} {'states':>8} {'task':20} {'ours s':>10} {'theirs s':>10} {'ours/theirs':>11}  their outcome")
     for family, n, task, o, t, ratio, outcome in rows:

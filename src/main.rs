@@ -50,6 +50,7 @@ enum Command {
     },
     /// Steady state: probabilities, fluxes, harvesting power, drive power, entropy production
     #[command(after_help = "Example:\n  ergopath steady problems/walker.toml --json")]
+    #[command(mut_arg("csv", |a| a.help("Print a table as CSV: transitions (the default: flux, work and drive rate of each transition), states (probabilities) or cycles; e.g. --csv=states")))]
     Steady {
         /// Model file (TOML)
         model: PathBuf,
@@ -86,6 +87,7 @@ enum Command {
     },
     /// Which parameter limits the bound: derivatives of baseline power and bound, ranked by headroom
     #[command(after_help = "Example:\n  ergopath sensitivity problems/walker.toml --csv")]
+    #[command(mut_arg("csv", |a| a.help("Print the table of every parameter's derivatives as CSV (--csv=parameters, the only table)")))]
     Sensitivity {
         /// Model file (TOML)
         model: PathBuf,
@@ -98,6 +100,7 @@ enum Command {
     #[command(
         after_help = "Example:\n  ergopath uncertainty problems/walker.toml --samples 1000 --seed 7 --save\n\nThe model gives rate_uncertainty (a factor at 95%) and energy_uncertainty (a 95% half-width in\nthe energy unit) at the top level or per state and transition; backward rates follow from LDB."
     )]
+    #[command(mut_arg("csv", |a| a.help("Print a table as CSV: samples (the default: one row per solved sample) or quantiles (each quantile with its 95% interval)")))]
     Uncertainty {
         /// Model file (TOML)
         model: PathBuf,
@@ -125,6 +128,7 @@ enum Command {
     #[command(
         after_help = "Examples:\n  ergopath bound problems/ring6.toml\n  ergopath bound problems/walker.toml --pairs empty/stepped,fuel_bound/hydrolysed --rate-cap 1000 --json"
     )]
+    #[command(mut_arg("csv", |a| a.help("Print a table as CSV: summary (the default: one row of the bound's figures), states (baseline and optimal probabilities), pathways (the printed designs' rates) or speed (the speed table)")))]
     Bound {
         /// Model file (TOML)
         model: PathBuf,
@@ -137,9 +141,8 @@ enum Command {
         /// Share of the headroom the printed design reaches
         #[arg(long, default_value_t = 0.99)]
         target: f64,
-        /// Print one JSON object (every key: `ergopath reference`, or docs/model-format.md)
-        #[arg(long)]
-        json: bool,
+        #[command(flatten)]
+        format: FormatFlags,
         #[command(flatten)]
         save: SaveFlag,
     },
@@ -147,6 +150,7 @@ enum Command {
     #[command(
         after_help = "Examples:\n  ergopath design problems/walker.toml --max-pathways 2 --rate-cap 1000\n  ergopath design problems/ring6.toml --max-pathways 3 --total-rate 50 --work-limit 2 --top 5 --save\n  ergopath design problems/walker.toml --shard 0/4 --save   (then: ergopath merge results/walker/design-part-*-of-4.json)"
     )]
+    #[command(mut_arg("csv", |a| a.help("Print a table as CSV: pathways (the default: one row per pathway of each ranked design), ranking (one row per design) or precision (each design's fluctuations)")))]
     Design {
         /// Model file (TOML)
         model: PathBuf,
@@ -217,6 +221,7 @@ enum Command {
     #[command(
         after_help = "Example:\n  ergopath merge results/walker/design-part-*-of-4.json --save"
     )]
+    #[command(mut_arg("csv", |a| a.help("Print a table as CSV: pathways (the default: one row per pathway of each ranked design), ranking (one row per design) or precision (each design's fluctuations)")))]
     Merge {
         /// Part files written by `ergopath design --shard I/N`
         #[arg(required = true)]
@@ -233,6 +238,7 @@ enum Command {
     #[command(
         after_help = "Examples:\n  ergopath sweep problems/walker.toml --over rate-cap=1..1e6 --points 13 --save\n  ergopath sweep problems/ring6.toml --over max-pathways=1..4 --rate-cap 100"
     )]
+    #[command(mut_arg("csv", |a| a.help("Print the table of budget values as CSV (--csv=budgets: best power, share of headroom, upper bound, pathways at each value)")))]
     Sweep {
         /// Model file (TOML)
         model: PathBuf,
@@ -267,6 +273,7 @@ enum Command {
     #[command(
         after_help = "Example:\n  ergopath compare problems/walker.toml problems/photoswitch.toml problems/ring6.toml --rate-cap 1000 --save"
     )]
+    #[command(mut_arg("csv", |a| a.help("Print the ranking of the models as CSV (--csv=ranking, the only table; powers in W per molecule)")))]
     Compare {
         /// Two or more model files
         #[arg(required = true, num_args = 2..)]
@@ -285,6 +292,7 @@ enum Command {
     #[command(
         after_help = "Examples:\n  ergopath regimes problems/ring6.toml --scale stored --from 0.01 --to 1000 --points 11 --save\n  ergopath regimes problems/walker.toml --scale drive --from 0.1 --to 3\n\n`stored` multiplies every work label and raises each drive by the same amount, so no rate changes;\nwork, drive and energies (or a comma list) keep forward rates and take backward rates from LDB."
     )]
+    #[command(mut_arg("csv", |a| a.help("Print the table of scales as CSV (--csv=scales: indicator, regime, exact headroom and both closed forms at each scale)")))]
     Regimes {
         /// Model file (TOML)
         model: PathBuf,
@@ -480,16 +488,30 @@ struct FormatFlags {
     /// Print one JSON object (every key: `ergopath reference`, or docs/model-format.md)
     #[arg(long, conflicts_with = "csv")]
     json: bool,
-    /// Print the per-transition table as CSV
-    #[arg(long)]
-    csv: bool,
+    /// Print a table as CSV (the command's help names its tables)
+    #[arg(
+        long,
+        value_name = "TABLE",
+        num_args = 0..=1,
+        require_equals = true,
+        hide_possible_values = true,
+        value_parser = clap::builder::PossibleValuesParser::new(commands::CSV_TABLES)
+    )]
+    csv: Option<Option<String>>,
 }
 
 impl FormatFlags {
     fn format(&self) -> Format {
-        match (self.json, self.csv) {
+        let table = |name: &str| {
+            commands::CSV_TABLES
+                .iter()
+                .find(|t| **t == name)
+                .map_or(Format::Csv, |&t| Format::CsvTable(t))
+        };
+        match (self.json, &self.csv) {
             (true, _) => Format::Json,
-            (_, true) => Format::Csv,
+            (_, Some(None)) => Format::Csv,
+            (_, Some(Some(name))) => table(name),
             _ => Format::Text,
         }
     }
@@ -580,7 +602,7 @@ fn main() -> ExitCode {
             pairs,
             rate_cap,
             target,
-            json,
+            format,
             save,
         } => commands::bound(
             model,
@@ -588,7 +610,7 @@ fn main() -> ExitCode {
                 pairs: pairs.clone(),
                 rate_cap: *rate_cap,
                 target: *target,
-                format: if *json { Format::Json } else { Format::Text },
+                format: format.format(),
                 save_root: save.root(),
             },
         ),

@@ -14,18 +14,93 @@ pub fn log_ratio(a: f64, b: f64) -> f64 {
 }
 
 /// `points` values from `lo` to `hi` (both positive normal), evenly spaced in the logarithm,
-/// with exact end points and each inner value rounded to 12 significant digits, so that a grid
-/// meant to pass through 1000 writes 1000, not 999.9999999999995. Computed in logs, so any
-/// range of doubles works.
+/// with exact end points. When `lo` and `hi` have the same decimal digits (1 and 1e6, 2e-3 and
+/// 2e3: the ratio is an exact power of ten), point `i` is computed from integers: the digits
+/// times `10^q` (parsed, so correctly rounded) times `10^(r / steps)` for the remainder `r`,
+/// so a grid meant to pass through 1000 is exactly 1000 and the half-decade points are the
+/// nearest doubles to `10^(n + 1/2)` within one rounding of `powf`. Other ranges are computed
+/// in logs (any range of doubles works) and rounded to 12 significant digits, which removes the
+/// round-off of the power function where the true point is a round number.
 pub fn log_spaced(lo: f64, hi: f64, points: usize) -> Vec<f64> {
+    let steps = points.saturating_sub(1).max(1) as i64;
+    let decade = match (decimal(lo), decimal(hi)) {
+        (Some((m1, e1)), Some((m2, e2))) if m1 == m2 => Some((m1, e1, e2 - e1)),
+        _ => None,
+    };
     let (a, b) = (lo.log10(), hi.log10());
     (0..points)
         .map(|i| match i {
             0 => lo,
             i if i + 1 == points => hi,
-            i => round_to_12_digits(10f64.powf(a + (b - a) * i as f64 / (points - 1) as f64)),
+            i => match decade {
+                Some((digits, exponent, span)) => {
+                    let n = span * i as i64;
+                    let (q, r) = (n.div_euclid(steps), n.rem_euclid(steps));
+                    let base = exact_decimal(digits, exponent + q);
+                    if r == 0 {
+                        base
+                    } else {
+                        base * 10f64.powf(r as f64 / steps as f64)
+                    }
+                }
+                None => round_to_12_digits(10f64.powf(a + (b - a) * i as f64 / steps as f64)),
+            },
         })
         .collect()
+}
+
+/// `points` values from `lo` to `hi`, evenly spaced, with exact end points: each point is the
+/// rational `(L (steps - i) + H i) / steps` times a power of ten, from the decimal digits `L`,
+/// `H` of the ends, written out to 30 significant digits and parsed (so 0.1..0.5 gives 0.3, not
+/// 0.30000000000000004, and 1..10 gives every integer). Ends whose digits do not fit fall back
+/// to `lo + (hi - lo) i / steps`.
+pub fn linear_spaced(lo: f64, hi: f64, points: usize) -> Vec<f64> {
+    let steps = points.saturating_sub(1).max(1) as i128;
+    let exact = |i: i128| -> Option<f64> {
+        let ((m1, e1), (m2, e2)) = (decimal(lo)?, decimal(hi)?);
+        let e = e1.min(e2);
+        let scale = |m: u64, by: i64| -> Option<i128> {
+            10i128
+                .checked_pow(u32::try_from(by).ok()?)?
+                .checked_mul(i128::from(m))
+        };
+        let (l, h) = (scale(m1, e1 - e)?, scale(m2, e2 - e)?);
+        let n = l.checked_mul(steps - i)?.checked_add(h.checked_mul(i)?)?;
+        // n / steps * 10^e, as decimal digits: n 10^p / steps with p filling 30 digits.
+        let p = 30i64
+            .saturating_sub(n.checked_ilog10().unwrap_or(0) as i64)
+            .max(0);
+        let q = n.checked_mul(10i128.checked_pow(u32::try_from(p).ok()?)?)? / steps;
+        format!("{q}e{}", e - p).parse().ok()
+    };
+    (0..points)
+        .map(|i| match i {
+            0 => lo,
+            i if i + 1 == points => hi,
+            i => exact(i as i128).unwrap_or_else(|| lo + (hi - lo) * i as f64 / steps as f64),
+        })
+        .collect()
+}
+
+/// The shortest decimal form of a positive finite `x` as `(digits, exponent)`, `x = digits
+/// 10^exponent` (read back, this is `x` exactly).
+fn decimal(x: f64) -> Option<(u64, i64)> {
+    if !(x.is_finite() && x > 0.0) {
+        return None;
+    }
+    let text = format!("{x:e}");
+    let (mantissa, exponent) = text.split_once('e')?;
+    let exponent: i64 = exponent.parse().ok()?;
+    let (int, frac) = mantissa.split_once('.').unwrap_or((mantissa, ""));
+    let digits: u64 = format!("{int}{frac}").parse().ok()?;
+    Some((digits, exponent - frac.len() as i64))
+}
+
+/// The double nearest to `digits 10^exponent` (the parser rounds correctly).
+fn exact_decimal(digits: u64, exponent: i64) -> f64 {
+    format!("{digits}e{exponent}")
+        .parse()
+        .unwrap_or(digits as f64 * 10f64.powi(exponent as i32))
 }
 
 /// `x` rounded to 12 significant decimal digits: far finer than any grid step, and coarse
@@ -195,5 +270,39 @@ mod tests {
         );
         let wide = log_spaced(1e-300, 1e300, 3);
         assert_eq!(wide, vec![1e-300, 1.0, 1e300]);
+        // Half decades: every decade exact, the points between it the nearest doubles to
+        // 10^(n + 1/2) (sqrt(10) = 3.1622776601683795, the correctly rounded double).
+        let half = log_spaced(1.0, 1e6, 13);
+        for (i, x) in half.iter().enumerate() {
+            if i % 2 == 0 {
+                assert_eq!(*x, 10f64.powi(i as i32 / 2));
+                assert_eq!(
+                    crate::report::csv::number(*x),
+                    format!("{}", 10f64.powi(i as i32 / 2))
+                );
+            } else {
+                let want: f64 = format!("{}e{}", 10f64.sqrt(), i / 2).parse().unwrap();
+                assert!((x - want).abs() <= 2.0 * f64::EPSILON * want, "{x} {want}");
+            }
+        }
+        assert_eq!(log_spaced(0.01, 1000.0, 11)[4], 1.0);
+        assert_eq!(log_spaced(0.01, 1000.0, 11)[10], 1000.0);
+        assert_eq!(log_spaced(2e-3, 2e3, 7)[3], 2.0);
+        assert_eq!(log_spaced(2.0, 50.0, 3)[1], 10.0);
+        assert_eq!(log_spaced(0.01, 1000.0, 11)[2], 0.1);
+    }
+
+    #[test]
+    fn linear_grids_are_the_nearest_doubles_to_their_decimal_points() {
+        assert_eq!(linear_spaced(0.1, 0.5, 5), vec![0.1, 0.2, 0.3, 0.4, 0.5]);
+        assert_eq!(
+            linear_spaced(1.0, 10.0, 10),
+            (1..=10).map(f64::from).collect::<Vec<_>>()
+        );
+        assert_eq!(linear_spaced(1.0, 2.0, 4)[1], 4.0 / 3.0);
+        assert_eq!(
+            linear_spaced(0.5, 3.0, 6),
+            vec![0.5, 1.0, 1.5, 2.0, 2.5, 3.0]
+        );
     }
 }

@@ -70,11 +70,37 @@ pub enum Format {
     #[default]
     Text,
     Json,
+    /// The report's first table as CSV (the text where a report has none).
     Csv,
+    /// The report's table of this name as CSV ([`CSV_TABLES`]); an error names the tables a
+    /// report has when it has no such table.
+    CsvTable(&'static str),
     /// Every form at once, for library callers: one JSON object with `text`, `json` (the
-    /// report's JSON as a string), `csv` and `svg` (null where the report has none).
+    /// report's JSON as a string), `csv` (the first table), `tables` (every table by name) and
+    /// `svg` (null where the report has none).
     Forms,
 }
+
+/// Every table name a report may have, for `--csv=TABLE` ([`Format::CsvTable`]): `steady`:
+/// transitions, states, cycles; `bound`: summary, states, pathways, speed; `design` and `merge`:
+/// pathways, ranking, precision; `sweep`: budgets (its `--save` also writes the frontier
+/// table as `frontier-<over>.csv`); `regimes`: scales; `sensitivity`: parameters; `compare`: ranking; `uncertainty`: samples,
+/// quantiles. The first of each command is what `--csv` alone prints.
+pub const CSV_TABLES: [&str; 13] = [
+    "transitions",
+    "states",
+    "cycles",
+    "summary",
+    "pathways",
+    "speed",
+    "ranking",
+    "precision",
+    "budgets",
+    "scales",
+    "parameters",
+    "samples",
+    "quantiles",
+];
 
 /// `ergopath check`: validate and summarise.
 pub fn check(path: &Path) -> Result<String, Error> {
@@ -99,6 +125,20 @@ fn save(
     report: &str,
     files: &[(&str, &str)],
 ) -> Result<String, Error> {
+    save_with_tables(root, folder, title, report, files, &[])
+}
+
+/// [`save`] with the report's further tables: each `(table, csv)` is saved as the companion
+/// report `<report>-<table>` holding only `<report>-<table>.csv`. Companions of `report` from an
+/// earlier save that this one no longer has leave the manifest.
+fn save_with_tables(
+    root: &Path,
+    folder: &str,
+    title: &str,
+    report: &str,
+    files: &[(&str, &str)],
+    tables: &[(&str, &str)],
+) -> Result<String, Error> {
     use crate::report::output::{self, Manifest, MANIFEST};
     if output::safe_report_name(report).is_none() {
         return Err(Error::Usage(format!(
@@ -113,6 +153,25 @@ fn save(
         report.to_string(),
         files.iter().map(|(name, _)| name.to_string()).collect(),
     );
+    let prefix = format!("{report}-");
+    manifest.reports.retain(|name, listed| {
+        !(name.starts_with(&prefix) && listed.len() == 1 && listed[0] == format!("{name}.csv"))
+    });
+    let table_files: Vec<(String, &str)> = tables
+        .iter()
+        .map(|(table, csv)| (format!("{report}-{table}.csv"), *csv))
+        .collect();
+    for ((table, _), (name, _)) in tables.iter().zip(&table_files) {
+        manifest
+            .reports
+            .insert(format!("{report}-{table}"), vec![name.clone()]);
+    }
+    let files: Vec<(&str, &str)> = files
+        .iter()
+        .copied()
+        .chain(table_files.iter().map(|(n, c)| (n.as_str(), *c)))
+        .collect();
+    let files = files.as_slice();
     let mut staged = Vec::with_capacity(files.len() + 2);
     let mut written = Vec::with_capacity(files.len() + 1);
     for (name, contents) in files {
@@ -175,7 +234,10 @@ fn save(
 struct Rendered {
     text: String,
     json: String,
-    csv: Option<String>,
+    /// The report's tables as CSV, `(table name, csv)`: the first is `<name>.csv` and what
+    /// `--csv` prints; the others are saved as `<name>-<table>.csv` and printed by
+    /// `--csv=<table>`.
+    tables: Vec<(&'static str, String)>,
     svg: Option<String>,
 }
 
@@ -207,31 +269,66 @@ fn emit_in(
     let r = Rendered {
         text: clean(r.text),
         json: r.json,
-        csv: r.csv.map(clean),
+        tables: r.tables.into_iter().map(|(t, c)| (t, clean(c))).collect(),
         svg: r.svg.map(clean),
     };
+    let main_csv = r.tables.first().map(|(_, c)| c.clone());
     let printed = match format {
         Format::Text => r.text.clone(),
         Format::Json => r.json.clone(),
-        Format::Csv => r.csv.clone().unwrap_or_else(|| r.text.clone()),
-        Format::Forms => to_json(&serde_json::json!({
-            "text": r.text,
-            "json": r.json,
-            "csv": r.csv,
-            "svg": r.svg,
-        }))?,
+        Format::Csv => main_csv.clone().unwrap_or_else(|| r.text.clone()),
+        Format::CsvTable(wanted) => match r.tables.iter().find(|(t, _)| *t == wanted) {
+            Some((_, csv)) => csv.clone(),
+            None => {
+                let names: Vec<&str> = r.tables.iter().map(|(t, _)| *t).collect();
+                return Err(Error::Usage(if names.is_empty() {
+                    format!("--csv={wanted}: `{name}` writes no table")
+                } else {
+                    format!(
+                        "--csv={wanted}: `{name}` has no such table; its tables are {} (--csv alone prints {})",
+                        names.join(", "),
+                        names[0]
+                    )
+                }));
+            }
+        },
+        Format::Forms => {
+            let tables: serde_json::Map<String, serde_json::Value> = r
+                .tables
+                .iter()
+                .map(|(t, c)| (t.to_string(), serde_json::Value::String(c.clone())))
+                .collect();
+            to_json(&serde_json::json!({
+                "text": r.text,
+                "json": r.json,
+                "csv": main_csv,
+                "tables": tables,
+                "svg": r.svg,
+            }))?
+        }
     };
     let Some(root) = save_root else {
         return Ok(printed);
     };
     let names = ["txt", "json", "csv", "svg"].map(|ext| format!("{name}.{ext}"));
-    let forms = [Some(&r.text), Some(&r.json), r.csv.as_ref(), r.svg.as_ref()];
+    let forms = [
+        Some(&r.text),
+        Some(&r.json),
+        main_csv.as_ref(),
+        r.svg.as_ref(),
+    ];
     let files: Vec<(&str, &str)> = names
         .iter()
         .zip(forms)
         .filter_map(|(n, form)| form.map(|f| (n.as_str(), f.as_str())))
         .collect();
-    let note = save(root, folder, title, name, &files)?;
+    let more: Vec<(&str, &str)> = r
+        .tables
+        .iter()
+        .skip(1)
+        .map(|(t, c)| (*t, c.as_str()))
+        .collect();
+    let note = save_with_tables(root, folder, title, name, &files, &more)?;
     // Machine-readable output stays clean; the note only follows the readable report.
     Ok(if format == Format::Text {
         printed + &note
@@ -254,7 +351,7 @@ pub fn steady_on(model: &Model, format: Format, save_root: Option<&Path>) -> Res
     let rendered = Rendered {
         text: report.text(model),
         json: to_json(&report)?,
-        csv: Some(report.csv()),
+        tables: report.tables(model),
         svg: save_root.map(|_| draw::baseline_svg(model, &state.probabilities, &obs)),
     };
     emit(model, "steady", format, save_root, rendered)
@@ -282,7 +379,7 @@ pub fn sensitivity_on(
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        csv: Some(report.csv()),
+        tables: vec![("parameters", report.csv())],
         svg: Some(report.svg()),
     };
     emit(model, "sensitivity", format, save_root, rendered)
@@ -449,7 +546,7 @@ pub fn bound_on(model: &Model, request: &BoundRequest) -> Result<String, Error> 
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        csv: None,
+        tables: report.tables(),
         svg: report.svg(),
     };
     emit(
@@ -603,7 +700,7 @@ pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Err
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        csv: Some(report.csv()),
+        tables: vec![("scales", report.csv())],
         svg: Some(report.svg()),
     };
     let name = format!("regimes-{}", report.scaled.replace(',', "-"));

@@ -215,7 +215,7 @@ pub fn simulate_on(model: &Model, request: &SimulateRequest) -> Result<String, E
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        csv: None,
+        tables: Vec::new(),
         svg: report.svg(),
     };
     emit(
@@ -455,7 +455,7 @@ pub(crate) fn emit_frontier(
     let rendered = Rendered {
         text: text.clone(),
         json,
-        csv: None,
+        tables: vec![("frontier", report.frontier_csv(baseline))],
         svg: report.frontier_svg(baseline),
     };
     // The text form with its own "saved:" note.

@@ -816,7 +816,7 @@ fn design_output(
     let rendered = Rendered {
         text,
         json: to_json(&report)?,
-        csv: Some(report.csv()),
+        tables: report.tables(),
         svg: report.svg(),
     };
     emit(model, "design", format, save_root, rendered)
@@ -1156,9 +1156,7 @@ fn sweep_values(over: &str, points: usize) -> Result<(SweepOver, Vec<f64>), Erro
     let values = if log {
         crate::numeric::log_spaced(lo, hi, points)
     } else {
-        (0..points)
-            .map(|i| lo + (hi - lo) * i as f64 / (points - 1) as f64)
-            .collect()
+        crate::numeric::linear_spaced(lo, hi, points)
     };
     Ok((quantity, values))
 }
@@ -1331,7 +1329,7 @@ pub fn sweep_on(
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        csv: Some(report.csv()),
+        tables: vec![("budgets", report.csv())],
         svg: Some(report.svg()),
     };
     let out = emit(
@@ -1439,7 +1437,7 @@ pub fn compare_models(models: &[Model], request: &CompareRequest) -> Result<Stri
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        csv: Some(report.csv()),
+        tables: vec![("ranking", report.csv())],
         svg: Some(report.svg()),
     };
     // Results of a comparison belong to no single model: they go to results/compare/ (a model

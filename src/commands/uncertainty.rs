@@ -89,7 +89,7 @@ pub fn uncertainty_on(model: &Model, request: &UncertaintyRequest) -> Result<Str
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        csv: Some(report.csv()),
+        tables: report.tables(),
         svg: report.svg(),
     };
     emit(

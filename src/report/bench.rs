@@ -1,28 +1,23 @@
 //! The `bench` report: timing tables for the terminal and the same rows as CSV.
 
-use super::csv_field;
+use super::csv::{Cell, Csv};
 use super::table::{Align, Table};
 use crate::bench::{BoundTiming, DesignTiming, SteadyTiming};
 
-/// One table in two forms: aligned text and CSV (CSV keeps full precision).
+/// One table in two forms: aligned text and CSV (CSV keeps full precision, in the one number
+/// format of [`super::csv`]).
 fn tabulate(
     columns: &[(&str, Align)],
-    csv_header: &str,
-    rows: &[(Vec<String>, String)],
+    csv_header: &[&str],
+    rows: Vec<(Vec<String>, Vec<Cell>)>,
 ) -> (String, String) {
     let mut table = Table::new(columns);
-    let mut csv = format!("{csv_header}\n");
+    let mut csv = Csv::new(csv_header);
     for (cells, line) in rows {
-        table.row(cells.clone());
-        csv.push_str(line);
-        csv.push('\n');
+        table.row(cells);
+        csv.row(line);
     }
-    (table.render(), csv)
-}
-
-/// Peak memory in MB for a CSV field (empty where unknown).
-fn csv_megabytes(mb: Option<f64>) -> String {
-    mb.map_or(String::new(), |m| format!("{m:.1}"))
+    (table.render(), csv.finish())
 }
 
 /// Peak memory in MB for a table cell (`-` where unknown).
@@ -44,18 +39,17 @@ pub fn design_tables(r: &DesignTiming) -> (String, String) {
         format!("{:.0}", per_second(r.evaluations)),
         format!("{:.0}", r.raw_scorings_per_second),
     ];
-    let line = format!(
-        "{},{},{},{},{},{},{:e},{:e},{:e}",
-        r.states,
-        r.max_pathways,
-        r.sets,
-        r.scored,
-        r.pruned,
-        r.evaluations,
-        r.seconds,
-        per_second(r.evaluations),
-        r.raw_scorings_per_second
-    );
+    let line: Vec<Cell> = vec![
+        r.states.into(),
+        r.max_pathways.into(),
+        r.sets.into(),
+        r.scored.into(),
+        r.pruned.into(),
+        r.evaluations.into(),
+        r.seconds.into(),
+        per_second(r.evaluations).into(),
+        r.raw_scorings_per_second.into(),
+    ];
     let columns = [
         ("states", Align::Right),
         ("k", Align::Right),
@@ -69,14 +63,24 @@ pub fn design_tables(r: &DesignTiming) -> (String, String) {
     ];
     tabulate(
         &columns,
-        "states,max_pathways,sets,optimised,pruned,evaluations,median_seconds,scorings_per_second,raw_scorings_per_second",
-        &[(cells, line)],
+        &[
+            "states",
+            "max_pathways",
+            "sets",
+            "optimised",
+            "pruned",
+            "evaluations",
+            "median [s]",
+            "scorings_per_second [1/s]",
+            "raw_scorings_per_second [1/s]",
+        ],
+        vec![(cells, line)],
     )
 }
 
 /// Steady-state timings as (text table, CSV).
 pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
-    let rows: Vec<(Vec<String>, String)> = rows
+    let rows: Vec<(Vec<String>, Vec<Cell>)> = rows
         .iter()
         .map(|r| {
             let cells = vec![
@@ -88,17 +92,16 @@ pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
                 megabytes(r.peak_mb),
                 format!("{:.2}", r.precision_seconds / r.observed_seconds),
             ];
-            let line = format!(
-                "{},{},{:e},{},{:e},{},{:e},{:e}",
-                r.family.name(),
-                r.states,
-                r.seconds,
-                r.method,
-                r.relative_residual,
-                csv_megabytes(r.peak_mb),
-                r.observed_seconds,
-                r.precision_seconds
-            );
+            let line: Vec<Cell> = vec![
+                r.family.name().into(),
+                r.states.into(),
+                r.seconds.into(),
+                r.method.into(),
+                r.relative_residual.into(),
+                r.peak_mb.into(),
+                r.observed_seconds.into(),
+                r.precision_seconds.into(),
+            ];
             (cells, line)
         })
         .collect();
@@ -113,14 +116,23 @@ pub fn steady_tables(rows: &[SteadyTiming]) -> (String, String) {
     ];
     tabulate(
         &columns,
-        "family,states,median_seconds,method,relative_residual,peak_mb,observed_seconds,precision_seconds",
-        &rows,
+        &[
+            "family",
+            "states",
+            "median [s]",
+            "method",
+            "relative_residual",
+            "peak_memory [MB]",
+            "observed [s]",
+            "with_precision [s]",
+        ],
+        rows,
     )
 }
 
 /// Bound timings as (text table, CSV).
 pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
-    let rows: Vec<(Vec<String>, String)> = rows
+    let rows: Vec<(Vec<String>, Vec<Cell>)> = rows
         .iter()
         .map(|r| {
             let cells = vec![
@@ -142,20 +154,19 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
                 r.design_seconds.map_or("-".into(), |s| format!("{s:.4}")),
                 megabytes(r.peak_mb),
             ];
-            let line = format!(
-                "{},{},{},{:e},{:e},{},{:e},{:e},{},{},{}",
-                r.family.name(),
-                r.states,
-                r.route,
-                r.seconds,
-                r.steady_seconds,
-                r.newton_steps,
-                r.relative_gap,
-                r.headroom,
-                r.design_seconds.map_or(String::new(), |s| format!("{s:e}")),
-                csv_megabytes(r.peak_mb),
-                r.refused.as_deref().map_or(String::new(), csv_field)
-            );
+            let line: Vec<Cell> = vec![
+                r.family.name().into(),
+                r.states.into(),
+                r.route.into(),
+                r.seconds.into(),
+                r.steady_seconds.into(),
+                r.newton_steps.into(),
+                r.relative_gap.into(),
+                r.headroom.into(),
+                r.design_seconds.into(),
+                r.peak_mb.into(),
+                r.refused.as_deref().into(),
+            ];
             (cells, line)
         })
         .collect();
@@ -172,8 +183,20 @@ pub fn bound_tables(rows: &[BoundTiming]) -> (String, String) {
     ];
     tabulate(
         &columns,
-        "family,states,route,median_seconds,steady_seconds,newton_steps,relative_gap,headroom_kT,design_seconds,peak_mb,refused",
-        &rows,
+        &[
+            "family",
+            "states",
+            "route",
+            "median [s]",
+            "steady [s]",
+            "newton_steps",
+            "relative_gap",
+            "headroom [kT]",
+            "design [s]",
+            "peak_memory [MB]",
+            "refused",
+        ],
+        rows,
     )
 }
 

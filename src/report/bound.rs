@@ -276,7 +276,7 @@ impl BoundReport {
             wrap(&format!("added pathways on: {}", self.pairs), "  ", 78)
         );
         out.push_str(&format!(
-            "  baseline power       {} {p}\n  bound                {} {p}\n  certified upper      {} {p}  (relative gap {:.1e})\n  headroom             {} {p}\n{}  benefit at optimum   {} {p}, minus maintenance cost {}\n  solved by            {}\n\n",
+            "  baseline power       {} {p}\n  bound                {} {p}\n  certified upper      {} {p}  (relative gap {:.1e})\n  headroom             {} {p}\n{}  benefit at optimum   {} {p}, minus maintenance cost {} {p}\n  solved by            {}\n\n",
             bounded(self.baseline_power, self.baseline_power_roundoff),
             bounded(self.bound.power, self.bound.power_roundoff),
             num(self.bound.certified_upper),
@@ -343,6 +343,149 @@ impl BoundReport {
 }
 
 impl BoundReport {
+    /// The report's tables as CSV: `summary` (first; one row with the text's figures: powers,
+    /// round-off bounds, gap, regime, closed forms, benefit and cost, and each printed
+    /// design's verified power), `states` (baseline and optimal distribution; the optimum's
+    /// logarithm too, since it may lie below the double range), `pathways` (the attaining
+    /// design's and the rate-capped design's pathways, `design` naming which) and `speed`
+    /// (the speed table).
+    pub fn tables(&self) -> Vec<(&'static str, String)> {
+        use super::csv::{per, with_unit, Cell, Csv};
+        let (p, t, e) = (&self.units.power, self.units.time, self.units.energy);
+        let mut summary = Csv::new(&[
+            with_unit("baseline_power", p),
+            with_unit("baseline_power_roundoff", p),
+            with_unit("bound", p),
+            with_unit("bound_roundoff", p),
+            with_unit("certified_upper", p),
+            "relative_gap".into(),
+            with_unit("headroom", p),
+            with_unit("headroom_roundoff", p),
+            "regime".into(),
+            "predicted_regime".into(),
+            with_unit("indicator", "kT"),
+            "shift".into(),
+            with_unit("near_equilibrium", p),
+            with_unit("strong_drive", p),
+            with_unit("benefit", p),
+            with_unit("maintenance_cost", p),
+            "route".into(),
+            "target_fraction".into(),
+            with_unit("attaining_power", p),
+            with_unit("attaining_power_roundoff", p),
+            "attaining_fraction_of_headroom".into(),
+            with_unit("rate_cap", &per(t)),
+            with_unit("capped_power", p),
+            with_unit("capped_power_roundoff", p),
+            "capped_fraction_of_headroom".into(),
+        ]);
+        let design = |d: Option<&DesignJson>| -> [Cell; 3] {
+            match d {
+                Some(d) => [
+                    d.achieved_power.into(),
+                    d.achieved_power_roundoff.into(),
+                    d.fraction_of_headroom.into(),
+                ],
+                None => [Cell::Missing, Cell::Missing, Cell::Missing],
+            }
+        };
+        let capped = self.rate_capped.as_ref();
+        let cap = capped
+            .map(|c| c.rate_cap)
+            .or(self.rate_capped_failure.as_ref().map(|f| f.rate_cap));
+        let mut row: Vec<Cell> = vec![
+            self.baseline_power.into(),
+            self.baseline_power_roundoff.into(),
+            self.bound.power.into(),
+            self.bound.power_roundoff.into(),
+            self.bound.certified_upper.into(),
+            self.bound.relative_gap.into(),
+            self.bound.headroom.into(),
+            self.bound.headroom_roundoff.into(),
+            self.regime.name.into(),
+            self.regime.predicted.into(),
+            self.regime.indicator.into(),
+            self.regime.shift.into(),
+            self.closed_forms
+                .near_equilibrium
+                .as_ref()
+                .map(|x| x.headroom)
+                .into(),
+            self.closed_forms
+                .strong_drive
+                .as_ref()
+                .map(|x| x.headroom)
+                .into(),
+            self.benefit.into(),
+            self.maintenance_cost.into(),
+            self.route.into(),
+            self.target_fraction.into(),
+        ];
+        row.extend(design(self.design.as_ref()));
+        row.push(cap.into());
+        row.extend(design(capped.map(|c| &c.design)));
+        summary.row(row);
+
+        let mut states = Csv::new(&[
+            "state",
+            "baseline_probability",
+            "optimal_probability",
+            "optimal_ln_probability",
+        ]);
+        for (b, o) in self
+            .baseline_distribution
+            .iter()
+            .zip(&self.optimal_distribution)
+        {
+            states.row(vec![
+                (&b.name).into(),
+                b.probability.into(),
+                o.probability.into(),
+                o.ln_probability.unwrap_or(o.probability.ln()).into(),
+            ]);
+        }
+
+        let mut pathways = Csv::new(&[
+            "design".to_string(),
+            "from".into(),
+            "to".into(),
+            with_unit("forward", &per(t)),
+            with_unit("backward", &per(t)),
+            with_unit("work_per_jump", e),
+        ]);
+        let designs = self
+            .design
+            .iter()
+            .map(|d| ("attaining", d))
+            .chain(capped.map(|c| ("rate-capped", &c.design)));
+        for (name, d) in designs {
+            for w in &d.pathways {
+                pathways.row(vec![
+                    name.into(),
+                    (&w.from).into(),
+                    (&w.to).into(),
+                    w.forward.into(),
+                    w.backward.into(),
+                    w.work.into(),
+                ]);
+            }
+        }
+
+        let mut speed = Csv::new(&[
+            "fraction_of_headroom".to_string(),
+            with_unit("largest_added_rate", &per(t)),
+        ]);
+        for r in &self.speed_table {
+            speed.row(vec![r.fraction.into(), r.speed.into()]);
+        }
+        vec![
+            ("summary", summary.finish()),
+            ("states", states.finish()),
+            ("pathways", pathways.finish()),
+            ("speed", speed.finish()),
+        ]
+    }
+
     /// The regime line and one line per closed-form estimate with its error.
     fn closed_form_lines(&self) -> String {
         let r = &self.regime;
@@ -399,7 +542,11 @@ impl BoundReport {
             } else {
                 format!("  ({what})")
             };
-            out.push_str(&format!("  {name:<20} {}{error}\n", num(e.headroom)));
+            out.push_str(&format!(
+                "  {name:<20} {} {}{error}\n",
+                num(e.headroom),
+                self.units.power
+            ));
         }
         out
     }

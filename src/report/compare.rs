@@ -4,7 +4,7 @@
 
 use super::design::BudgetJson;
 use super::table::{percent, sci, Align, Table};
-use super::{csv_field, UnitsJson};
+use super::UnitsJson;
 use crate::bound::Bound;
 use crate::model::Model;
 use crate::search::{Budget, Found};
@@ -75,6 +75,7 @@ impl CompareReport {
         let mut table = Table::new(&[
             ("rank", Align::Right),
             ("model", Align::Left),
+            ("file", Align::Left),
             ("baseline W", Align::Right),
             ("bound W", Align::Right),
             ("headroom W", Align::Right),
@@ -85,6 +86,7 @@ impl CompareReport {
             table.row(vec![
                 (i + 1).to_string(),
                 r.title.clone(),
+                r.file.clone(),
                 sci(r.baseline_power),
                 sci(r.bound),
                 sci(r.headroom),
@@ -96,7 +98,12 @@ impl CompareReport {
         out.push_str(&table.render());
         for r in &self.ranking {
             if let Some(b) = &r.budget {
-                out.push_str(&format!("  {}: {}\n", r.title, b.describe(&r.units)));
+                out.push_str(&format!(
+                    "  {} ({}): {}\n",
+                    r.title,
+                    r.file,
+                    b.describe(&r.units)
+                ));
             }
         }
         if self.ranking.iter().any(|r| r.budget.is_none()) {
@@ -105,23 +112,32 @@ impl CompareReport {
         out
     }
 
+    /// The ranking as CSV: the text's columns, powers in watts per molecule.
     pub fn csv(&self) -> String {
-        let mut out = String::from("rank,title,file,baseline_power_w,bound_w,headroom_w,best_power_w,best_fraction_of_headroom\n");
-        let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
+        use super::csv::{with_unit, Csv};
+        let mut table = Csv::new(&[
+            "rank".to_string(),
+            "title".into(),
+            "file".into(),
+            with_unit("baseline_power", "W"),
+            with_unit("bound", "W"),
+            with_unit("headroom", "W"),
+            with_unit("best_power", "W"),
+            "best_fraction_of_headroom".into(),
+        ]);
         for (i, r) in self.ranking.iter().enumerate() {
-            out.push_str(&format!(
-                "{},{},{},{},{},{},{},{}\n",
-                i + 1,
-                csv_field(&r.title),
-                csv_field(&r.file),
-                r.baseline_power,
-                r.bound,
-                r.headroom,
-                opt(r.best_power),
-                opt(r.best_fraction_of_headroom)
-            ));
+            table.row(vec![
+                (i + 1).into(),
+                (&r.title).into(),
+                (&r.file).into(),
+                r.baseline_power.into(),
+                r.bound.into(),
+                r.headroom.into(),
+                r.best_power.into(),
+                r.best_fraction_of_headroom.into(),
+            ]);
         }
-        out
+        table.finish()
     }
 
     pub fn svg(&self) -> String {

@@ -99,3 +99,31 @@ pub fn cycles_text(model: &Model, cycles: &[CycleJson]) -> String {
     }
     out
 }
+
+/// The cycle table as CSV (the text's columns, the states as one `a -> b -> a` cell; the drive
+/// per turn and the flux's round-off bound beside them).
+pub fn cycles_csv(model: &Model, cycles: &[CycleJson]) -> String {
+    use super::csv::{per, with_unit, Csv};
+    let (e, t) = (model.units.energy.name(), model.units.time.name());
+    let mut table = Csv::new(&[
+        "cycle".to_string(),
+        with_unit("affinity_kt", "kT"),
+        with_unit("affinity", e),
+        with_unit("work_per_turn", e),
+        with_unit("drive_per_turn", e),
+        with_unit("cycle_flux", &per(t)),
+        with_unit("cycle_flux_roundoff", &per(t)),
+    ]);
+    for c in cycles {
+        table.row(vec![
+            format!("{} -> {}", c.states.join(" -> "), c.states[0]).into(),
+            c.affinity_kt.into(),
+            c.affinity.into(),
+            c.work_per_turn.into(),
+            c.drive_per_turn.into(),
+            c.flux.into(),
+            c.flux_roundoff.into(),
+        ]);
+    }
+    table.finish()
+}

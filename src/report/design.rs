@@ -5,7 +5,7 @@
 use super::bound::{BoundNumbers, PathwayJson};
 use super::precision::{PrecisionJson, PRECISION_CAUTION};
 use super::table::{bounded, num, percent, sci, wrap, Align, Table};
-use super::{csv_field, UnitsJson};
+use super::UnitsJson;
 use crate::bound::{design::Pathway, Bound};
 use crate::model::Model;
 use crate::search::{Budget, Found, Outcome};
@@ -289,7 +289,7 @@ impl DesignReport {
             search.scorings
         ));
         out.push_str(&format!(
-            "  baseline power    {} {p}\n  universal bound   {} {p}  (headroom {})\n\n",
+            "  baseline power    {} {p}\n  universal bound   {} {p}  (headroom {} {p})\n\n",
             num(self.baseline_power),
             num(self.bound.power),
             num(self.bound.headroom)
@@ -353,29 +353,96 @@ impl DesignReport {
         out
     }
 
-    /// One row per pathway of every ranked design.
-    pub fn csv(&self) -> String {
-        let mut out = String::from("rank,achieved_power,fraction_of_headroom,total_rate,largest_work,added_entropy_production,from,to,forward,backward,work\n");
+    /// The report's tables as CSV: `pathways` (first; one row per pathway of every ranked
+    /// design, with its design's figures), `ranking` (one row per design, the text's ranking
+    /// columns) and, where computed, `precision` (the text's precision table).
+    pub fn tables(&self) -> Vec<(&'static str, String)> {
+        use super::csv::{per, with_unit, Csv};
+        let (p, t, e) = (&self.units.power, self.units.time, self.units.energy);
+        let entropy = format!("k_B/{t}");
+        let mut pathways = Csv::new(&[
+            "rank".to_string(),
+            with_unit("achieved_power", p),
+            "fraction_of_headroom".into(),
+            with_unit("total_rate", &per(t)),
+            with_unit("largest_work", e),
+            with_unit("added_entropy_production", &entropy),
+            "from".into(),
+            "to".into(),
+            with_unit("forward", &per(t)),
+            with_unit("backward", &per(t)),
+            with_unit("work", e),
+        ]);
+        let mut ranking = Csv::new(&[
+            "rank".to_string(),
+            with_unit("power", p),
+            with_unit("power_roundoff", p),
+            "fraction_of_headroom".into(),
+            with_unit("total_rate", &per(t)),
+            with_unit("largest_work", e),
+            with_unit("added_entropy_production", &entropy),
+            "pathways".into(),
+        ]);
+        let mut precision = Csv::new(&[
+            "rank".to_string(),
+            with_unit("diffusion", &format!("{e}^2/{t}")),
+            with_unit("diffusion_roundoff", &format!("{e}^2/{t}")),
+            with_unit("fano_factor", e),
+            with_unit("fano_factor_roundoff", e),
+            "uncertainty_product".into(),
+            "uncertainty_product_roundoff".into(),
+        ]);
         for d in &self.designs {
             for w in &d.pathways {
-                out.push_str(&format!(
-                    "{},{},{},{},{},{},{},{},{},{},{}\n",
-                    d.rank,
-                    d.achieved_power,
-                    d.fraction_of_headroom
-                        .map_or(String::new(), |f| f.to_string()),
-                    d.total_rate,
-                    d.largest_work,
-                    d.added_entropy_production,
-                    csv_field(&w.from),
-                    csv_field(&w.to),
-                    w.forward,
-                    w.backward,
-                    w.work
-                ));
+                pathways.row(vec![
+                    d.rank.into(),
+                    d.achieved_power.into(),
+                    d.fraction_of_headroom.into(),
+                    d.total_rate.into(),
+                    d.largest_work.into(),
+                    d.added_entropy_production.into(),
+                    (&w.from).into(),
+                    (&w.to).into(),
+                    w.forward.into(),
+                    w.backward.into(),
+                    w.work.into(),
+                ]);
+            }
+            let names: Vec<String> = d
+                .pathways
+                .iter()
+                .map(|w| format!("{}-{}", w.from, w.to))
+                .collect();
+            ranking.row(vec![
+                d.rank.into(),
+                d.achieved_power.into(),
+                d.achieved_power_roundoff.into(),
+                d.fraction_of_headroom.into(),
+                d.total_rate.into(),
+                d.largest_work.into(),
+                d.added_entropy_production.into(),
+                names.join(", ").into(),
+            ]);
+            if let Some(pr) = &d.precision {
+                precision.row(vec![
+                    d.rank.into(),
+                    pr.diffusion.into(),
+                    pr.diffusion_roundoff.into(),
+                    pr.fano_factor.into(),
+                    pr.fano_factor_roundoff.into(),
+                    pr.uncertainty_product.into(),
+                    pr.uncertainty_product_roundoff.into(),
+                ]);
             }
         }
-        out
+        let mut tables = vec![
+            ("pathways", pathways.finish()),
+            ("ranking", ranking.finish()),
+        ];
+        if self.designs.iter().any(|d| d.precision.is_some()) {
+            tables.push(("precision", precision.finish()));
+        }
+        tables
     }
 
     /// Share of the headroom by rank, with the universal bound as a dashed line.

@@ -9,6 +9,7 @@ pub mod bench;
 pub mod bound;
 pub mod check;
 pub mod compare;
+pub mod csv;
 pub mod cycles;
 pub mod design;
 pub mod html;
@@ -125,15 +126,6 @@ pub fn transition_name(model: &Model, c: usize) -> String {
     match &model.transitions[c].label {
         Some(label) => format!("{arrow} ({label})"),
         None => arrow,
-    }
-}
-
-/// Escapes one CSV field (RFC 4180).
-pub fn csv_field(text: &str) -> String {
-    if text.contains([',', '"', '\n']) {
-        format!("\"{}\"", text.replace('"', "\"\""))
-    } else {
-        text.to_string()
     }
 }
 

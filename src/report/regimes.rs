@@ -112,26 +112,40 @@ impl RegimesReport {
         out
     }
 
+    /// The table as CSV: the text's columns (headrooms in the power unit, errors as
+    /// fractions), the predicted regime and why a point failed.
     pub fn csv(&self) -> String {
-        let mut out = String::from("scale,indicator,shift,regime,predicted_regime,headroom,near_equilibrium,near_equilibrium_error,strong_drive,strong_drive_error,failure\n");
-        let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
+        use super::csv::{with_unit, Csv};
+        let p = &self.units.power;
+        let mut table = Csv::new(&[
+            "scale".to_string(),
+            with_unit("indicator", "kT"),
+            "shift".into(),
+            "regime".into(),
+            "predicted_regime".into(),
+            with_unit("headroom", p),
+            with_unit("near_equilibrium", p),
+            "near_equilibrium_error".into(),
+            with_unit("strong_drive", p),
+            "strong_drive_error".into(),
+            "failure".into(),
+        ]);
         for pt in &self.points {
-            out.push_str(&format!(
-                "{},{},{},{},{},{},{},{},{},{},{}\n",
-                pt.scale,
-                opt(pt.indicator),
-                opt(pt.shift),
-                pt.regime.unwrap_or(""),
-                pt.predicted.unwrap_or(""),
-                opt(pt.headroom),
-                opt(pt.near_equilibrium),
-                opt(pt.near_equilibrium_error()),
-                opt(pt.strong_drive),
-                opt(pt.strong_drive_error()),
-                super::csv_field(pt.failure.as_deref().unwrap_or(""))
-            ));
+            table.row(vec![
+                pt.scale.into(),
+                pt.indicator.into(),
+                pt.shift.into(),
+                pt.regime.into(),
+                pt.predicted.into(),
+                pt.headroom.into(),
+                pt.near_equilibrium.into(),
+                pt.near_equilibrium_error().into(),
+                pt.strong_drive.into(),
+                pt.strong_drive_error().into(),
+                pt.failure.as_deref().into(),
+            ]);
         }
-        out
+        table.finish()
     }
 
     /// Log-log chart of the exact headroom and both estimates against the scale, with a

@@ -153,28 +153,54 @@ impl SensitivityReport {
         out
     }
 
+    /// The table as CSV: the text's columns (every parameter, not only the first rows). A
+    /// derivative is per unit of its parameter, which `parameter_unit` names row by row
+    /// (`e-fold` for a rate, the energy unit, `K`); `headroom_per_step` is per natural step
+    /// (one e-fold, 1 kT, 1 K), in the power unit.
     pub fn csv(&self) -> String {
+        use super::csv::{with_unit, Csv};
         let p = &self.units.power;
-        let mut out = format!("kind,name,d_power [{p}],d_power_error,d_bound [{p}],d_bound_error,d_headroom [{p}],power_elasticity,bound_elasticity\n");
-        let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
+        let per = format!("{p} per parameter_unit");
+        let mut table = Csv::new(&[
+            "kind".to_string(),
+            "name".into(),
+            "parameter_unit".into(),
+            with_unit("d_bound", &per),
+            with_unit("d_bound_error", &per),
+            with_unit("d_power", &per),
+            with_unit("d_power_error", &per),
+            with_unit("d_headroom", &per),
+            with_unit("headroom_per_step", p),
+            "power_elasticity".into(),
+            "bound_elasticity".into(),
+        ]);
         for q in &self.parameters {
-            out.push_str(&format!(
-                "{},{},{},{},{},{},{},{},{}\n",
+            let unit = match q.kind {
+                ParameterKind::Rate => "e-fold",
+                ParameterKind::Energy | ParameterKind::Work | ParameterKind::Drive => {
+                    self.units.energy
+                }
+                ParameterKind::Temperature => "K",
+            };
+            table.row(vec![
                 serde_json::to_value(q.kind)
                     .ok()
                     .and_then(|v| v.as_str().map(str::to_string))
-                    .unwrap_or_default(),
-                super::csv_field(&q.name),
-                q.d_power,
-                q.d_power_error,
-                q.d_bound,
-                q.d_bound_error,
-                q.d_headroom,
-                opt(q.power_elasticity),
-                opt(q.bound_elasticity)
-            ));
+                    .unwrap_or_default()
+                    .into(),
+                (&q.name).into(),
+                unit.into(),
+                q.d_bound.into(),
+                q.d_bound_error.into(),
+                q.d_power.into(),
+                q.d_power_error.into(),
+                q.d_headroom.into(),
+                q.headroom_per_step.into(),
+                q.power_elasticity.into(),
+                q.bound_elasticity.into(),
+            ]);
         }
-        out
+        table.finish()
     }
 
     /// The twelve parameters with the largest effect, as bars of their bound and power

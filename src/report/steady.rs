@@ -3,7 +3,7 @@
 use super::precision::{PrecisionJson, PRECISION_CAUTION};
 use super::table::wrap;
 use super::table::{bounded, num, percent, sci, Align, Table};
-use super::{csv_field, named_distribution, transition_name, StateProbability, UnitsJson};
+use super::{named_distribution, transition_name, StateProbability, UnitsJson};
 use crate::fluctuation::Precision;
 use crate::model::Model;
 use crate::steady::{Observables, SteadyState};
@@ -112,11 +112,12 @@ impl SteadyReport {
         }
         out.push_str(&states.render());
         out.push('\n');
+        let p = &self.units.power;
         let mut flows = Table::new(&[
             ("transition", Align::Left),
             (&format!("flux /{t}"), Align::Right),
-            ("work rate", Align::Right),
-            ("drive rate", Align::Right),
+            (&format!("work rate {p}"), Align::Right),
+            (&format!("drive rate {p}"), Align::Right),
         ]);
         for (c, tr) in self.transitions.iter().enumerate() {
             flows.row(vec![
@@ -127,7 +128,6 @@ impl SteadyReport {
             ]);
         }
         out.push_str(&flows.render());
-        let p = &self.units.power;
         out.push_str(&format!(
             "\n  harvesting power     {} {p}  ({:.4e} W per molecule)\n  drive power          {} {p}\n  entropy production   {} k_B/{t}\n  efficiency           {}\n",
             bounded(self.power, self.power_roundoff),
@@ -150,21 +150,40 @@ impl SteadyReport {
         out
     }
 
-    /// The per-transition table as CSV.
-    pub fn csv(&self) -> String {
-        let mut out = String::from("index,from,to,label,flux,work_rate,drive_rate\n");
+    /// The report's tables as CSV: transitions (first), states, cycles.
+    pub fn tables(&self, model: &Model) -> Vec<(&'static str, String)> {
+        use super::csv::{per, with_unit, Csv};
+        let (t, p) = (self.units.time, &self.units.power);
+        let mut flows = Csv::new(&[
+            "index".to_string(),
+            "from".into(),
+            "to".into(),
+            "label".into(),
+            with_unit("flux", &per(t)),
+            with_unit("flux_roundoff", &per(t)),
+            with_unit("work_rate", p),
+            with_unit("drive_rate", p),
+        ]);
         for (i, tr) in self.transitions.iter().enumerate() {
-            out.push_str(&format!(
-                "{},{},{},{},{:e},{:e},{:e}\n",
-                i,
-                csv_field(&tr.from),
-                csv_field(&tr.to),
-                csv_field(tr.label.as_deref().unwrap_or("")),
-                tr.flux,
-                tr.work_rate,
-                tr.drive_rate
-            ));
+            flows.row(vec![
+                i.into(),
+                (&tr.from).into(),
+                (&tr.to).into(),
+                tr.label.as_deref().into(),
+                tr.flux.into(),
+                tr.flux_roundoff.into(),
+                tr.work_rate.into(),
+                tr.drive_rate.into(),
+            ]);
         }
-        out
+        let mut states = Csv::new(&["state", "probability"]);
+        for s in &self.states {
+            states.row(vec![(&s.name).into(), s.probability.into()]);
+        }
+        vec![
+            ("transitions", flows.finish()),
+            ("states", states.finish()),
+            ("cycles", super::cycles::cycles_csv(model, &self.cycles)),
+        ]
     }
 }

@@ -46,11 +46,18 @@ pub fn report_markdown(
         if manifest.has(stem, "svg") {
             out.push_str(&format!("\n![{stem}]({stem}.svg)\n"));
         }
-        let data: Vec<String> = ["json", "csv", "dot"]
+        let mut data: Vec<String> = ["json", "csv", "dot"]
             .iter()
             .filter(|x| manifest.has(stem, x))
             .map(|x| format!("[{stem}.{x}]({stem}.{x})"))
             .collect();
+        // The report's further tables: companion reports `<stem>-<table>` holding only a CSV.
+        let prefix = format!("{stem}-");
+        for (name, files) in &manifest.reports {
+            if name.starts_with(&prefix) && files.len() == 1 && files[0] == format!("{name}.csv") {
+                data.push(format!("[{name}.csv]({name}.csv)"));
+            }
+        }
         if !data.is_empty() {
             out.push_str(&format!("\nData: {}\n", data.join(", ")));
         }

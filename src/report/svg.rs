@@ -1,5 +1,10 @@
 //! Minimal SVG line charts (no dependencies): linear or logarithmic axes, several series,
 //! optional dashed reference lines, a legend. Owns layout only; receives plain numbers.
+//!
+//! Every text stays inside the picture: the margins and the width grow with the longest legend
+//! entry, category name and title, measured by [`text_width`] (0.6 em per character, a common
+//! estimate of an average sans-serif glyph's advance, generous for lower case). A legend names
+//! only what is drawn.
 
 use std::fmt::Write;
 
@@ -35,6 +40,25 @@ const BOTTOM: f64 = 60.0;
 const COLOURS: [&str; 6] = [
     "#1f5fa8", "#c2491d", "#2e8540", "#7a3ea1", "#8c6d1f", "#444444",
 ];
+
+/// Estimated width of `text` at `size` px: 0.6 em a character (see the module comment).
+pub fn text_width(text: &str, size: f64) -> f64 {
+    0.6 * size * text.chars().count() as f64
+}
+
+/// Room kept between a text and the picture's edge.
+const PAD: f64 = 8.0;
+
+/// The width of a picture whose content spans `content` px, widened so that a title of
+/// `title` centred at `centre` fits; returns `(width, title centre)`.
+fn fit_title(content: f64, centre: f64, title: &str) -> (f64, f64) {
+    let half = text_width(title, 15.0) / 2.0;
+    if centre - half >= PAD && centre + half <= content - PAD {
+        return (content, centre);
+    }
+    let width = content.max(2.0 * half + 2.0 * PAD);
+    (width, width / 2.0)
+}
 
 fn nice_step(span: f64) -> f64 {
     let raw = span / 5.0;
@@ -97,12 +121,13 @@ fn escape(text: &str) -> String {
         .replace('>', "&gt;")
 }
 
-/// A new SVG document `height` tall with a white background and the title centred at `centre`.
-fn open(height: f64, centre: f64, title: &str) -> String {
+/// A new SVG document `width` x `height` with a white background and the title centred at
+/// `centre`.
+fn open(width: f64, height: f64, centre: f64, title: &str) -> String {
     let mut svg = String::new();
     let _ = writeln!(
         svg,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{height}" viewBox="0 0 {WIDTH} {height}" font-family="sans-serif" font-size="12">"#
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" viewBox="0 0 {width} {height}" font-family="sans-serif" font-size="12">"#
     );
     let _ = writeln!(svg, r#"<rect width="100%" height="100%" fill="white"/>"#);
     let _ = writeln!(
@@ -175,7 +200,24 @@ impl Chart {
             };
             TOP + (1.0 - t) * ph
         };
-        let mut svg = open(HEIGHT, LEFT + pw / 2.0, &self.title);
+        // Only series with a point to draw get a line and a legend entry: a legend never names
+        // a line that is not drawn (each keeps its colour, so charts stay comparable).
+        let drawn: Vec<(usize, &Series)> = self
+            .series
+            .iter()
+            .enumerate()
+            .filter(|(_, s)| s.points.iter().any(usable))
+            .collect();
+        // The legend (sample 30 px, then the name) decides the right margin.
+        let right = drawn
+            .iter()
+            .map(|(_, s)| 12.0 + 30.0 + text_width(&s.name, 12.0) + PAD)
+            .fold(RIGHT, f64::max);
+        let centre = LEFT + pw / 2.0;
+        let x_label_half = text_width(&self.x_label, 12.0) / 2.0;
+        let content = (LEFT + pw + right).max(centre + x_label_half + PAD);
+        let (width, title_centre) = fit_title(content, centre, &self.title);
+        let mut svg = open(width, HEIGHT, title_centre, &self.title);
         vertical_grid(&mut svg, &xticks, &fx, ph, self.log_x);
         for &t in &yticks {
             let y = fy(t);
@@ -205,14 +247,7 @@ impl Chart {
             TOP + ph / 2.0,
             escape(&self.y_label)
         );
-        // Only series with a point to draw get a line and a legend entry: a legend never names
-        // a line that is not drawn (each keeps its colour, so charts stay comparable).
-        let drawn = self
-            .series
-            .iter()
-            .enumerate()
-            .filter(|(_, s)| s.points.iter().any(usable));
-        for (slot, (k, s)) in drawn.enumerate() {
+        for (slot, &(k, s)) in drawn.iter().enumerate() {
             let colour = COLOURS[k % COLOURS.len()];
             let points: Vec<String> = s
                 .points
@@ -225,18 +260,21 @@ impl Chart {
             } else {
                 ""
             };
-            if s.joined {
+            // A line through one point draws nothing: a lone point is a dot, and so is its
+            // legend entry.
+            let joined = s.joined && points.len() > 1;
+            if joined {
                 let _ = writeln!(
                     svg,
-                    r#"<polyline fill="none" stroke="{colour}" stroke-width="2"{dash} points="{}"/>"#,
+                    r#"<polyline data-series="{k}" fill="none" stroke="{colour}" stroke-width="2"{dash} points="{}"/>"#,
                     points.join(" ")
                 );
             }
-            if s.markers {
+            if s.markers || !joined {
                 for p in s.points.iter().filter(|p| usable(p)) {
                     let _ = writeln!(
                         svg,
-                        r#"<circle cx="{:.1}" cy="{:.1}" r="3.5" fill="{colour}"/>"#,
+                        r#"<circle data-series="{k}" cx="{:.1}" cy="{:.1}" r="3.5" fill="{colour}"/>"#,
                         fx(p.0),
                         fy(p.1)
                     );
@@ -244,7 +282,8 @@ impl Chart {
             }
             // Legend entry: a line sample for joined series, a dot otherwise.
             let (ly, kx) = (TOP + 14.0 + 20.0 * slot as f64, LEFT + pw + 12.0);
-            if s.joined {
+            let _ = writeln!(svg, r#"<g class="legend-entry" data-series="{k}">"#);
+            if joined {
                 let _ = writeln!(
                     svg,
                     r#"<line x1="{kx:.1}" y1="{ly:.1}" x2="{:.1}" y2="{ly:.1}" stroke="{colour}" stroke-width="2"{dash}/>"#,
@@ -264,6 +303,7 @@ impl Chart {
                 ly + 4.0,
                 escape(&s.name)
             );
+            svg.push_str("</g>\n");
         }
         svg.push_str("</svg>\n");
         svg
@@ -293,12 +333,27 @@ impl Bars {
         let (xa, xb, ticks) = axis(lo, if hi > lo { hi } else { lo + 1.0 }, false);
         let bar_h = 14.0;
         let group_h = bar_h * self.series.len() as f64 + 14.0;
-        let left = 170.0;
-        let pw = WIDTH - left - RIGHT;
+        // The longest category name (right-aligned 8 px before the axis) decides the left
+        // margin, the longest legend entry (sample 20 px, then the name) the right one.
+        let left = self
+            .categories
+            .iter()
+            .map(|c| PAD + text_width(c, 12.0) + 8.0)
+            .fold(170.0, f64::max);
+        let right = self
+            .series
+            .iter()
+            .map(|(name, _)| 12.0 + 20.0 + text_width(name, 12.0) + PAD)
+            .fold(RIGHT, f64::max);
+        let pw = WIDTH - 170.0 - RIGHT;
         let ph = group_h * self.categories.len() as f64;
         let height = TOP + ph + BOTTOM;
         let fx = |x: f64| left + (x - xa) / (xb - xa) * pw;
-        let mut svg = open(height, left + pw / 2.0, &self.title);
+        let centre = left + pw / 2.0;
+        let label_half = text_width(&self.value_label, 12.0) / 2.0;
+        let content = (left + pw + right).max(centre + label_half + PAD);
+        let (width, title_centre) = fit_title(content, centre, &self.title);
+        let mut svg = open(width, height, title_centre, &self.title);
         vertical_grid(&mut svg, &ticks, &fx, ph, false);
         for (g, category) in self.categories.iter().enumerate() {
             let y0 = TOP + g as f64 * group_h + 7.0;
@@ -316,7 +371,7 @@ impl Bars {
                 let (a, b) = (fx(v.min(0.0)), fx(v.max(0.0)));
                 let _ = writeln!(
                     svg,
-                    r#"<rect x="{a:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="{}"/>"#,
+                    r#"<rect data-series="{s}" x="{a:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="{}"/>"#,
                     y0 + s as f64 * bar_h,
                     (b - a).max(0.5),
                     bar_h - 2.0,
@@ -338,11 +393,17 @@ impl Bars {
             height - 15.0,
             escape(&self.value_label)
         );
-        for (s, (name, _)) in self.series.iter().enumerate() {
-            let (ly, kx) = (TOP + 14.0 + 20.0 * s as f64, left + pw + 12.0);
+        // A legend entry only for a series with a bar drawn.
+        let drawn = self
+            .series
+            .iter()
+            .enumerate()
+            .filter(|(_, (_, vals))| vals.iter().flatten().any(|v| v.is_finite()));
+        for (slot, (s, (name, _))) in drawn.enumerate() {
+            let (ly, kx) = (TOP + 14.0 + 20.0 * slot as f64, left + pw + 12.0);
             let _ = writeln!(
                 svg,
-                r#"<rect x="{kx:.1}" y="{:.1}" width="14" height="10" fill="{}"/><text x="{:.1}" y="{:.1}">{}</text>"#,
+                r#"<g class="legend-entry" data-series="{s}"><rect x="{kx:.1}" y="{:.1}" width="14" height="10" fill="{}"/><text x="{:.1}" y="{:.1}">{}</text></g>"#,
                 ly - 6.0,
                 COLOURS[s % COLOURS.len()],
                 kx + 20.0,

@@ -184,31 +184,84 @@ impl SweepReport {
         out
     }
 
+    /// The unit of the swept quantity in a CSV header (`None`: a count).
+    fn value_csv_unit(&self) -> Option<String> {
+        match self.over {
+            "rate-cap" | "total-rate" => Some(super::csv::per(self.units.time)),
+            "work-limit" => Some(self.units.energy.to_string()),
+            _ => None,
+        }
+    }
+
+    /// The table as CSV: the text's columns (pathways as `a/b` pairs separated by spaces),
+    /// whether the design was carried over, and why an upper bound is missing.
     pub fn csv(&self) -> String {
-        let mut out = format!(
-            "{},best_power,fraction_of_headroom,relaxation,evaluated,carried_over,pathways,relaxation_missing\n",
-            self.over.replace('-', "_")
-        );
-        let opt = |x: Option<f64>| x.map_or(String::new(), |v| v.to_string());
+        use super::csv::{with_unit, Csv};
+        let p = &self.units.power;
+        let name = self.over.replace('-', "_");
+        let mut table = Csv::new(&[
+            self.value_csv_unit()
+                .map_or(name.clone(), |u| with_unit(&name, &u)),
+            with_unit("best_power", p),
+            "fraction_of_headroom".into(),
+            with_unit("upper_bound", p),
+            "sets_scored".into(),
+            "pathways".into(),
+            "carried_over".into(),
+            "upper_bound_missing".into(),
+        ]);
         for pt in &self.points {
             let names: Vec<String> = pt
                 .pathways
                 .iter()
                 .map(|w| format!("{}/{}", w.from, w.to))
                 .collect();
-            out.push_str(&format!(
-                "{},{},{},{},{},{},{},{}\n",
-                pt.value,
-                opt(pt.best_power),
-                opt(pt.fraction_of_headroom),
-                opt(pt.relaxation),
-                pt.evaluated,
-                pt.carried_over,
-                super::csv_field(&names.join(" ")),
-                super::csv_field(pt.relaxation_missing.as_deref().unwrap_or(""))
-            ));
+            table.row(vec![
+                pt.value.into(),
+                pt.best_power.into(),
+                pt.fraction_of_headroom.into(),
+                pt.relaxation.into(),
+                pt.evaluated.into(),
+                names.join(" ").into(),
+                pt.carried_over.into(),
+                pt.relaxation_missing.as_deref().into(),
+            ]);
         }
-        out
+        table.finish()
+    }
+
+    /// The frontier table as CSV (the text's columns; the baseline as the first row, its
+    /// budget value empty).
+    pub fn frontier_csv(&self, baseline: &PrecisionJson) -> String {
+        use super::csv::{with_unit, Csv};
+        let (p, e) = (&self.units.power, self.units.energy);
+        let name = self.over.replace('-', "_");
+        let mut table = Csv::new(&[
+            "design".to_string(),
+            self.value_csv_unit()
+                .map_or(name.clone(), |u| with_unit(&name, &u)),
+            with_unit("power", p),
+            with_unit("fano_factor", e),
+            "uncertainty_product".into(),
+        ]);
+        table.row(vec![
+            "baseline".into(),
+            super::csv::Cell::Missing,
+            self.baseline_power.into(),
+            baseline.fano_factor.into(),
+            baseline.uncertainty_product.into(),
+        ]);
+        for pt in &self.points {
+            let Some(pr) = &pt.precision else { continue };
+            table.row(vec![
+                "best".into(),
+                pt.value.into(),
+                pt.best_power.into(),
+                pr.fano_factor.into(),
+                pr.uncertainty_product.into(),
+            ]);
+        }
+        table.finish()
     }
 
     /// Power against the Fano factor of the best design at each budget value (the

@@ -111,9 +111,9 @@ impl UncertaintyReport {
         );
         let mut table = Table::new(&[
             ("quantile", Align::Left),
-            (&format!("baseline power /{p}"), Align::Right),
-            (&format!("bound /{p}"), Align::Right),
-            (&format!("headroom /{p}"), Align::Right),
+            (&format!("baseline power {p}"), Align::Right),
+            (&format!("bound {p}"), Align::Right),
+            (&format!("headroom {p}"), Align::Right),
         ]);
         table.row(vec![
             "nominal".into(),
@@ -155,14 +155,52 @@ impl UncertaintyReport {
         out
     }
 
-    /// One row per solved sample, units in the header.
-    pub fn csv(&self) -> String {
+    /// The report's tables as CSV: `samples` (first; one row per solved sample) and
+    /// `quantiles` (the text's two tables as one: each quantile with its 95% interval, after the
+    /// nominal model's row, whose `quantile` is `nominal` and intervals empty).
+    pub fn tables(&self) -> Vec<(&'static str, String)> {
+        use super::csv::{with_unit, Cell, Csv};
         let p = &self.units.power;
-        let mut out = format!("sample,baseline_power [{p}],bound [{p}],headroom [{p}]\n");
+        let mut samples = Csv::new(&[
+            "sample".to_string(),
+            with_unit("baseline_power", p),
+            with_unit("bound", p),
+            with_unit("headroom", p),
+        ]);
         for (i, [a, b, c]) in self.values.iter().enumerate() {
-            out.push_str(&format!("{i},{a:?},{b:?},{c:?}\n"));
+            samples.row(vec![i.into(), (*a).into(), (*b).into(), (*c).into()]);
         }
-        out
+        let mut header = vec!["quantile".to_string()];
+        for name in ["baseline_power", "bound", "headroom"] {
+            for suffix in ["", "_low", "_high"] {
+                header.push(with_unit(&format!("{name}{suffix}"), p));
+            }
+        }
+        let mut quantiles = Csv::new(&header);
+        let n = &self.nominal;
+        quantiles.row(vec![
+            "nominal".into(),
+            n.baseline_power.into(),
+            Cell::Missing,
+            Cell::Missing,
+            n.bound.into(),
+            Cell::Missing,
+            Cell::Missing,
+            n.headroom.into(),
+            Cell::Missing,
+            Cell::Missing,
+        ]);
+        for i in 0..self.bound.len() {
+            let mut row: Vec<Cell> = vec![self.bound[i].level.into()];
+            for q in [&self.baseline_power[i], &self.bound[i], &self.headroom[i]] {
+                row.extend([q.value.into(), q.low.into(), q.high.into()]);
+            }
+            quantiles.row(row);
+        }
+        vec![
+            ("samples", samples.finish()),
+            ("quantiles", quantiles.finish()),
+        ]
     }
 
     /// The empirical distribution functions of the three figures.

@@ -16,6 +16,7 @@ mod first_use;
 mod fuzzing;
 mod invariants;
 mod library_api;
+mod plots;
 mod precision;
 mod published;
 mod reference;

@@ -132,9 +132,10 @@ fn planted_links_at_temporary_names_are_never_followed() {
     let out = run_in(&dir, &["steady", &walker(), "--save"]);
     assert!(out.status.success(), "{}", stderr(&out));
     assert_eq!(std::fs::read_to_string(&victim).unwrap(), "precious");
-    // Exactly the report's files (text, JSON, CSV and the network diagram), report.md,
-    // report.html and the manifest were added, no temporary file.
-    assert_eq!(names_in(&folder).len(), planted + 7);
+    // Exactly the report's files (text, JSON, the transitions CSV and the network diagram),
+    // its two further tables (steady-states.csv, steady-cycles.csv), report.md, report.html and
+    // the manifest were added, no temporary file.
+    assert_eq!(names_in(&folder).len(), planted + 9);
     assert!(!folder.join(".ergopath-set-AbC123.tmp").exists());
     assert!(folder.join("manifest.json").is_file());
 }

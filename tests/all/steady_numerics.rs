@@ -174,8 +174,24 @@ fn steady_json_has_the_documented_keys() {
     ));
     let csv = run(&["steady", "problems/walker.toml", "--csv"]);
     let text = String::from_utf8(csv.stdout).unwrap();
-    assert!(text.starts_with("index,from,to,label,flux,work_rate,drive_rate\n"));
+    assert!(text.starts_with(
+        "index,from,to,label,flux [1/s],flux_roundoff [1/s],work_rate [pN nm/s],drive_rate [pN nm/s]\n"
+    ));
     assert_eq!(text.lines().count(), 6);
+    // The states' probabilities are the `states` table, as in the JSON.
+    let csv = run(&["steady", "problems/walker.toml", "--csv=states"]);
+    let text = String::from_utf8(csv.stdout).unwrap();
+    let rows: Vec<&str> = text.lines().collect();
+    assert_eq!(rows[0], "state,probability");
+    for (row, state) in rows[1..].iter().zip(v["states"].as_array().unwrap()) {
+        let (name, p) = row.split_once(',').unwrap();
+        assert_eq!(name, state["name"].as_str().unwrap());
+        assert_eq!(
+            p.parse::<f64>().unwrap(),
+            state["probability"].as_f64().unwrap()
+        );
+    }
+    assert_eq!(rows.len(), 5);
 }
 
 /// Log-uniform draws in 10^lo..10^hi from a seeded LCG (Knuth's MMIX constants).

@@ -562,8 +562,8 @@ def _arrayish(value: Any) -> Any:
 class Report:
     """A job's result. Keys of its JSON form (the CLI's ``--json``; see
     :func:`reference`) read as attributes or items, lists of numbers as numpy arrays;
-    ``to_dict()`` is the JSON form, ``text`` the CLI's report, ``csv`` and ``svg`` its table
-    and picture where the job has them."""
+    ``to_dict()`` is the JSON form, ``text`` the CLI's report, ``csv`` and ``svg`` its first
+    table and picture where the job has them, ``csv_tables`` every table by name."""
 
     #: The list of records :meth:`to_frame` turns into rows by default.
     table: Optional[str] = None
@@ -582,7 +582,14 @@ class Report:
 
     @property
     def csv(self) -> Optional[str]:
+        """The job's first table as CSV (the CLI's ``--csv``)."""
         return self._forms.get("csv")
+
+    @property
+    def csv_tables(self) -> Dict[str, str]:
+        """Every table of the job as CSV by name (the CLI's ``--csv=NAME``), first table
+        first."""
+        return dict(self._forms.get("tables") or {})
 
     @property
     def svg(self) -> Optional[str]:

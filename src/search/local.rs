@@ -47,6 +47,27 @@ pub struct RateMap<'a> {
     pub drops: Vec<f64>,
 }
 
+/// The largest double `l` with `exp(l) <= cap`: `exp(ln 10)` rounds to 10.000000000000002, so a
+/// design at its cap would otherwise list a rate one rounding step above the budget.
+fn log_not_above(cap: f64) -> f64 {
+    let mut level = cap.ln();
+    for _ in 0..8 {
+        if !(level.is_finite() && level.exp() > cap) {
+            break;
+        }
+        // One step towards -inf (`f64::next_down`, written out for Rust 1.84).
+        let bits = level.to_bits();
+        level = if level > 0.0 {
+            f64::from_bits(bits - 1)
+        } else if level < 0.0 {
+            f64::from_bits(bits + 1)
+        } else {
+            -f64::from_bits(1)
+        };
+    }
+    level
+}
+
 impl RateMap<'_> {
     fn work(&self, z: f64) -> (f64, f64) {
         match self.budget.work_limit {
@@ -57,7 +78,7 @@ impl RateMap<'_> {
 
     fn level(&self, y: f64) -> (f64, f64) {
         match self.budget.rate_cap {
-            Some(cap) => (cap.ln() - softplus(-y), sigmoid(-y)),
+            Some(cap) => (log_not_above(cap) - softplus(-y), sigmoid(-y)),
             None => (y, 1.0),
         }
     }
@@ -127,7 +148,7 @@ impl RateMap<'_> {
             let u = f.max(b).ln();
             theta.push(match self.budget.rate_cap {
                 // y = -softplus^-1(ln K - u), with the gap kept off zero.
-                Some(cap) => -(((cap.ln() - u).max(1e-9)).exp_m1()).ln(),
+                Some(cap) => -(((log_not_above(cap) - u).max(1e-9)).exp_m1()).ln(),
                 None => u,
             });
         }
@@ -318,6 +339,19 @@ pub fn maximise(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn rates_at_the_cap_never_exceed_it() {
+        // exp(ln 10) = 10.000000000000002 in double precision (IEEE 754 rounding).
+        assert!(10f64.ln().exp() > 10.0);
+        for cap in [10.0, 1000.0, 50.0, 0.3, 7e-5, 1e300, 3.0e-300] {
+            let level = log_not_above(cap);
+            assert!(level.exp() <= cap, "{cap}");
+            // One step of `ln cap` moves `exp` by about |ln cap| epsilon, relative.
+            let step = (cap.ln().abs() + 2.0) * f64::EPSILON;
+            assert!(level.exp() >= cap * (1.0 - 2.0 * step), "{cap}");
+        }
+    }
 
     fn budget(cap: Option<f64>, total: Option<f64>, work: Option<f64>) -> Budget {
         Budget {

@@ -45,6 +45,15 @@ pub struct PathwayJson {
     pub work: f64,
 }
 
+/// The pairs of `pathways` as `from-to`, joined by `separator` (the design and sweep tables).
+pub fn pair_names(pathways: &[PathwayJson], separator: &str) -> String {
+    pathways
+        .iter()
+        .map(|w| format!("{}-{}", w.from, w.to))
+        .collect::<Vec<_>>()
+        .join(separator)
+}
+
 impl PathwayJson {
     /// An added pathway with state names, rates per time unit and work in the model's unit.
     pub fn of(p: &crate::bound::design::Pathway, model: &Model) -> Self {

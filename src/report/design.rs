@@ -304,11 +304,6 @@ impl DesignReport {
             ("pathways", Align::Left),
         ]);
         for d in &self.designs {
-            let names: Vec<String> = d
-                .pathways
-                .iter()
-                .map(|w| format!("{}-{}", w.from, w.to))
-                .collect();
             ranking.row(vec![
                 d.rank.to_string(),
                 num(d.achieved_power),
@@ -316,7 +311,7 @@ impl DesignReport {
                 num(d.total_rate),
                 num(d.largest_work),
                 num(d.added_entropy_production),
-                names.join(", "),
+                super::bound::pair_names(&d.pathways, ", "),
             ]);
         }
         out.push_str(&ranking.render());
@@ -408,11 +403,6 @@ impl DesignReport {
                     w.work.into(),
                 ]);
             }
-            let names: Vec<String> = d
-                .pathways
-                .iter()
-                .map(|w| format!("{}-{}", w.from, w.to))
-                .collect();
             ranking.row(vec![
                 d.rank.into(),
                 d.achieved_power.into(),
@@ -421,7 +411,7 @@ impl DesignReport {
                 d.total_rate.into(),
                 d.largest_work.into(),
                 d.added_entropy_production.into(),
-                names.join(", ").into(),
+                super::bound::pair_names(&d.pathways, ", ").into(),
             ]);
             if let Some(pr) = &d.precision {
                 precision.row(vec![

@@ -163,18 +163,14 @@ impl SweepReport {
             ("pathways", Align::Left),
         ]);
         for pt in &self.points {
-            let names: Vec<String> = pt
-                .pathways
-                .iter()
-                .map(|w| format!("{}-{}", w.from, w.to))
-                .collect();
             table.row(vec![
                 num(pt.value),
                 pt.best_power.map_or("-".into(), num),
                 pt.fraction_of_headroom.map_or("-".into(), percent),
                 pt.relaxation.map_or("-".into(), num),
                 pt.evaluated.to_string(),
-                names.join(", ") + if pt.carried_over { " (carried)" } else { "" },
+                super::bound::pair_names(&pt.pathways, ", ")
+                    + if pt.carried_over { " (carried)" } else { "" },
             ]);
         }
         out.push_str(&table.render());

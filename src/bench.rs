@@ -1,9 +1,13 @@
 //! Seeded synthetic networks and timing of the pipeline stages (`ergopath bench`).
 //!
-//! Owns the two benchmark families: *banded* (a ring plus chords reaching at most 20 states
-//! ahead, like joint system-environment chains) and *random chords* (expander-like, the hardest
-//! case for direct factorisation), each with 2n channels. Timing uses wall-clock medians of
-//! several runs; nothing here asserts speed.
+//! Owns the benchmark families: *banded* (a ring plus chords reaching at most 20 states ahead,
+//! like joint system-environment chains) and *random chords* (expander-like, the hardest case
+//! for direct factorisation), each with 2n channels; and four that resemble users' networks:
+//! *mixed work* (work labels of both signs, 0.1 to 10 kT, on most channels; rates over six
+//! decades), *photon* (the same with a photon-like drive near 100 kT on every tenth ring step),
+//! *switching* (the joint chain of a banded system with three environment states that switch
+//! slowly) and *side chains* (a banded backbone carrying dead-end chains). Timing uses
+//! wall-clock medians of several runs; nothing here asserts speed.
 
 use crate::model::{Channel, Network};
 use crate::steady::{self, SolveError, SteadySettings};
@@ -14,23 +18,51 @@ use std::time::Instant;
 pub enum Family {
     Banded,
     RandomChords,
+    MixedWork,
+    Photon,
+    Switching,
+    SideChains,
 }
 
 impl Family {
+    /// Every family, in the order the benchmark tables list them.
+    pub const ALL: [Family; 6] = [
+        Family::Banded,
+        Family::RandomChords,
+        Family::MixedWork,
+        Family::Photon,
+        Family::Switching,
+        Family::SideChains,
+    ];
+
     pub fn name(self) -> &'static str {
         match self {
             Family::Banded => "banded",
             Family::RandomChords => "random-chords",
+            Family::MixedWork => "mixed-work",
+            Family::Photon => "photon",
+            Family::Switching => "switching",
+            Family::SideChains => "side-chains",
         }
     }
 }
 
 pub use crate::rng::SplitMix;
 
-/// A seeded network of `n` states and 2n channels: a ring, plus one chord per state. Energies
-/// are uniform in +-2 kT, rates log-uniform in 0.1..10, every ring step stores 0.2 kT of work and
-/// draws 1 kT of drive.
+/// A seeded network of `n` states of `family` (see the module header), connected.
 pub fn synthetic(family: Family, n: usize, seed: u64) -> Network {
+    match family {
+        Family::Banded | Family::RandomChords => ring_with_chords(family, n, seed),
+        Family::MixedWork => labelled(n, seed, None),
+        Family::Photon => labelled(n, seed, Some(10)),
+        Family::Switching => switching(n, seed),
+        Family::SideChains => side_chains(n, seed),
+    }
+}
+
+/// A ring plus one chord per state and 2n channels. Energies are uniform in +-2 kT, rates
+/// log-uniform in 0.1..10, every ring step stores 0.2 kT of work and draws 1 kT of drive.
+fn ring_with_chords(family: Family, n: usize, seed: u64) -> Network {
     let mut rng = SplitMix::new(seed);
     let energies: Vec<f64> = (0..n).map(|_| 4.0 * rng.uniform() - 2.0).collect();
     let mut channels = Vec::with_capacity(2 * n);
@@ -43,10 +75,137 @@ pub fn synthetic(family: Family, n: usize, seed: u64) -> Network {
     }
     for i in 0..n {
         let reach = match family {
-            Family::Banded => 2 + (rng.next_u64() % 19) as usize,
             Family::RandomChords => 2 + (rng.next_u64() % (n as u64 - 3).max(1)) as usize,
+            _ => 2 + (rng.next_u64() % 19) as usize,
         };
         add(&mut rng, i, (i + reach) % n, 0.0, 0.0);
+    }
+    Network { energies, channels }
+}
+
+/// A work label of random sign and magnitude log-uniform in 0.1..10 kT, on 90% of channels.
+fn work_label(rng: &mut SplitMix) -> f64 {
+    if rng.uniform() < 0.1 {
+        return 0.0;
+    }
+    let size = 10f64.powf(2.0 * rng.uniform() - 1.0);
+    if rng.uniform() < 0.5 {
+        -size
+    } else {
+        size
+    }
+}
+
+/// A forward rate log-uniform over six decades, 1e-3..1e3.
+fn wide_rate(rng: &mut SplitMix) -> f64 {
+    10f64.powf(6.0 * rng.uniform() - 3.0)
+}
+
+/// Ring-with-chords topology among `states` (offset `first`) with labelled channels: each ring
+/// step draws 1 kT plus its work label (so it runs forward by 1 kT), chords draw nothing;
+/// every `photon_every`-th ring step draws 100 kT instead and stores 5 kT.
+fn labelled_block(
+    rng: &mut SplitMix,
+    energies: &[f64],
+    (first, states): (usize, usize),
+    photon_every: Option<usize>,
+    drive_shift: f64,
+    channels: &mut Vec<Channel>,
+) {
+    for i in 0..states {
+        let (from, to) = (first + i, first + (i + 1) % states);
+        let photon = photon_every.is_some_and(|k| i % k == 0);
+        let (work, drive) = if photon {
+            (5.0, 100.0)
+        } else {
+            let w = work_label(rng);
+            (w, w + 1.0 + drive_shift)
+        };
+        let forward = if photon { 1.0 } else { wide_rate(rng) };
+        channels.push(Channel::balanced(energies, from, to, forward, work, drive));
+    }
+    for i in 0..states {
+        let reach = 2 + (rng.next_u64() % 19) as usize;
+        let (from, to) = (first + i, first + (i + reach) % states);
+        if from != to {
+            let work = work_label(rng);
+            let forward = wide_rate(rng);
+            channels.push(Channel::balanced(energies, from, to, forward, work, 0.0));
+        }
+    }
+}
+
+fn spread_energies(rng: &mut SplitMix, n: usize) -> Vec<f64> {
+    (0..n).map(|_| 6.0 * rng.uniform() - 3.0).collect()
+}
+
+/// [`Family::MixedWork`] and, with photon steps, [`Family::Photon`].
+fn labelled(n: usize, seed: u64, photon_every: Option<usize>) -> Network {
+    let mut rng = SplitMix::new(seed);
+    let energies = spread_energies(&mut rng, n);
+    let mut channels = Vec::with_capacity(2 * n);
+    labelled_block(&mut rng, &energies, (0, n), photon_every, 0.0, &mut channels);
+    Network { energies, channels }
+}
+
+/// Environment states of [`Family::Switching`], and their switching rate (per time unit).
+const ENVIRONMENTS: usize = 3;
+const SWITCHING_RATE: f64 = 1e-3;
+
+/// [`Family::Switching`]: a mixed-work system of `n / 3` states copied into three environment
+/// states (drives 0, 2 and 4 kT stronger), the copies of each system state joined in a cycle of
+/// slow switches that carry no work or drive.
+fn switching(n: usize, seed: u64) -> Network {
+    let mut rng = SplitMix::new(seed);
+    let system = (n / ENVIRONMENTS).max(2);
+    let system_energies = spread_energies(&mut rng, system);
+    let energies: Vec<f64> = (0..ENVIRONMENTS)
+        .flat_map(|_| system_energies.iter().copied())
+        .collect();
+    let mut channels = Vec::with_capacity(3 * energies.len());
+    for e in 0..ENVIRONMENTS {
+        let mut copy = SplitMix::new(seed ^ 0x5eed);
+        let block = (e * system, system);
+        labelled_block(&mut copy, &energies, block, None, 2.0 * e as f64, &mut channels);
+    }
+    for e in 0..ENVIRONMENTS {
+        let next = (e + 1) % ENVIRONMENTS;
+        for s in 0..system {
+            let (from, to) = (e * system + s, next * system + s);
+            channels.push(Channel::balanced(&energies, from, to, SWITCHING_RATE, 0.0, 0.0));
+        }
+    }
+    Network { energies, channels }
+}
+
+/// Length of each dead-end chain of [`Family::SideChains`].
+const SIDE_CHAIN: usize = 5;
+
+/// [`Family::SideChains`]: a mixed-work backbone of half the states, the other half in chains of
+/// five states hanging off evenly spaced backbone states (wide rates, work labels).
+fn side_chains(n: usize, seed: u64) -> Network {
+    let mut rng = SplitMix::new(seed);
+    let backbone = (n / 2).max(3);
+    let energies = spread_energies(&mut rng, n.max(backbone));
+    let mut channels = Vec::with_capacity(2 * n);
+    labelled_block(&mut rng, &energies, (0, backbone), None, 0.0, &mut channels);
+    let chains = (energies.len() - backbone) / SIDE_CHAIN;
+    let spacing = (backbone / chains.max(1)).max(1);
+    let mut next = backbone;
+    for c in 0..chains {
+        let mut at = (c * spacing) % backbone;
+        for _ in 0..SIDE_CHAIN {
+            let (work, forward) = (work_label(&mut rng), wide_rate(&mut rng));
+            channels.push(Channel::balanced(&energies, at, next, forward, work, 0.0));
+            at = next;
+            next += 1;
+        }
+    }
+    // States left over by the division hang off the backbone's first state.
+    while next < energies.len() {
+        let forward = wide_rate(&mut rng);
+        channels.push(Channel::balanced(&energies, 0, next, forward, 0.0, 0.0));
+        next += 1;
     }
     Network { energies, channels }
 }
@@ -342,6 +501,18 @@ pub fn time_design(states: usize, k: usize, runs: usize) -> Result<DesignTiming,
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn every_family_is_connected_and_of_the_size_asked() {
+        for family in Family::ALL {
+            for n in [30, 301] {
+                let net = synthetic(family, n, 7);
+                assert_eq!(net.len(), n - n % ENVIRONMENTS * (family == Family::Switching) as usize, "{}", family.name());
+                assert_eq!(net.components().len(), 1, "{}", family.name());
+                assert!(net.channels.iter().all(|c| c.forward > 0.0 && c.backward > 0.0));
+            }
+        }
+    }
 
     #[test]
     fn synthetic_networks_are_connected_with_two_n_channels() {

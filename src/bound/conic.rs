@@ -161,6 +161,7 @@ pub struct Candidate {
 /// Solution of the capped program: distribution and the one-way fluxes of each candidate.
 #[derive(Debug, Clone)]
 pub struct CappedSolution {
+    pub route: super::capped::CappedRoute,
     /// Minus the dual objective: an upper bound on the program's optimum up to the tolerance;
     /// `None` when the solver stopped at reduced accuracy.
     pub dual_bound: Option<f64>,
@@ -216,6 +217,7 @@ pub fn capped(
     }
     let (x, dual) = program.solve(&q, variables)?;
     Ok(CappedSolution {
+        route: super::capped::CappedRoute::Conic,
         dual_bound: dual.map(|d| -d),
         p: x[..n].to_vec(),
         forward_flux: x[f0..f0 + m].iter().map(|v| v.max(0.0)).collect(),

@@ -2,7 +2,7 @@
 //! section 4), its speed-versus-gap table, the exact rate-capped design (section 5), and
 //! the independent verification of any design by a steady-state solve of baseline + added rates.
 
-use super::conic::{self, Candidate};
+use super::conic::Candidate;
 use super::objective::Objective;
 use super::Bound;
 use crate::model::{components, Channel, Network, PairSelection};
@@ -146,19 +146,59 @@ impl VerifiedDesign {
     }
 }
 
+/// What the speed table measures.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SpeedBasis {
+    /// The exact frontier: the smallest per-pathway rate cap at which some design on the
+    /// allowed pairs reaches each share (the capped program's certified upper value, bisected
+    /// in the cap; methods, section 11).
+    #[default]
+    Frontier,
+    /// The tree design's own scaling: the largest rate that one design needs, an upper bound
+    /// on the frontier (used beyond [`CAPPED_ALL_PAIRS_LIMIT`] states, or where the capped
+    /// program fails).
+    TreeDesign,
+}
+
+/// One entry of the speed table.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Speed {
+    /// The rate cap (frontier) or largest rate (tree design) that reaches the share.
+    Reached(f64),
+    /// No cap up to the rate ceiling reaches it.
+    NotReached,
+    /// The capped program failed on the way: the frontier is not determined here.
+    NotDetermined,
+}
+
+impl Speed {
+    pub fn rate(self) -> Option<f64> {
+        match self {
+            Speed::Reached(r) => Some(r),
+            _ => None,
+        }
+    }
+}
+
 /// The attaining tree design and its speed table.
 #[derive(Debug, Clone, Default)]
 pub struct Attaining {
     /// The verified design at the target share; `None` without headroom.
     pub design: Option<VerifiedDesign>,
-    /// `(share of the headroom, largest added rate needed)`; the rate is `None` if unreachable.
-    pub speeds: Vec<(f64, Option<f64>)>,
-    /// `(largest added rate, share of the headroom)` along the tree design, for plotting.
+    /// `(share of the headroom, rate cap needed)`.
+    pub speeds: Vec<(f64, Speed)>,
+    /// What `speeds` and `curve` measure.
+    pub basis: SpeedBasis,
+    /// `(rate cap, share of the headroom)` along the basis, for plotting.
     pub curve: Vec<(f64, f64)>,
+    /// `(largest added rate, share of the headroom)` along the tree design.
+    pub tree_curve: Vec<(f64, f64)>,
 }
 
-/// The attaining tree design at `target` share of the headroom (verified), and the speed needed
-/// for each share in `fractions`. Empty when there is no headroom.
+/// The attaining tree design at `target` share of the headroom (verified), and the rate cap
+/// needed for each share in `fractions`: the exact frontier up to [`CAPPED_ALL_PAIRS_LIMIT`]
+/// states, the tree design's own scaling beyond. Empty when there is no headroom.
 pub fn attaining(
     network: &Network,
     bound: &Bound,
@@ -172,7 +212,7 @@ pub fn attaining(
         return Ok(Attaining::default());
     }
     let tree = TreeDesign::new(network, bound, pairs);
-    let speeds = fractions
+    let tree_rates: Vec<(f64, Option<f64>)> = fractions
         .iter()
         .map(|&f| {
             (
@@ -196,7 +236,7 @@ pub fn attaining(
         tree.speed_for(network, bound.baseline_power, headroom, 0.01),
         tree.speed_for(network, bound.baseline_power, headroom, 0.9999),
     );
-    let curve = match span {
+    let tree_curve: Vec<(f64, f64)> = match span {
         (Some(lo), Some(hi)) if hi > lo => (0..=60)
             .filter_map(|k| {
                 let speed = lo * (hi / lo).powf(k as f64 / 60.0);
@@ -205,11 +245,134 @@ pub fn attaining(
             .collect(),
         _ => Vec::new(),
     };
+    let frontier = (network.len() <= CAPPED_ALL_PAIRS_LIMIT)
+        .then(|| Frontier::new(network, bound, pairs))
+        .and_then(|f| f.table(fractions, &tree_rates));
+    let (speeds, basis, curve) = match frontier {
+        Some((speeds, curve)) => (speeds, SpeedBasis::Frontier, curve),
+        None => {
+            let speeds = tree_rates
+                .iter()
+                .map(|&(f, r)| (f, r.map_or(Speed::NotReached, Speed::Reached)))
+                .collect();
+            (speeds, SpeedBasis::TreeDesign, tree_curve.clone())
+        }
+    };
     Ok(Attaining {
         design,
         speeds,
+        basis,
         curve,
+        tree_curve,
     })
+}
+
+/// The speed frontier: the capped program's certified share of the headroom as a function of
+/// the per-pathway rate cap (non-decreasing in the cap), and its inverse by bisection.
+struct Frontier {
+    objective: Objective,
+    candidates: Vec<Candidate>,
+    start: Vec<f64>,
+    baseline_power: f64,
+    headroom: f64,
+    /// No searched design goes above this rate (methods, section 5, rate ceiling).
+    ceiling: f64,
+    /// The fastest baseline rate: where the bracket starts at most (the tree design's speeds
+    /// are often orders of magnitude above the frontier, where the program is stiffer).
+    fastest: f64,
+}
+
+/// Relative width in the cap to which the frontier's bisection is carried.
+const FRONTIER_TOLERANCE: f64 = 1e-6;
+
+impl Frontier {
+    fn new(network: &Network, bound: &Bound, pairs: &PairSelection) -> Self {
+        Self {
+            objective: Objective::new(network),
+            candidates: candidates(network.len(), pairs),
+            start: bound.baseline.clone(),
+            baseline_power: bound.baseline_power,
+            headroom: bound.headroom(),
+            ceiling: 1e12 * network.max_rate(),
+            fastest: network.max_rate(),
+        }
+    }
+
+    /// Upper bound on the share of the headroom that any design with every added rate at most
+    /// `cap` reaches (certified by the capped program), or `None` if that program fails.
+    fn share(&self, cap: f64) -> Option<f64> {
+        let solution = super::capped::best(&self.objective, &self.candidates, cap, &self.start);
+        let upper = solution.ok()?.dual_bound?;
+        Some((upper - self.baseline_power) / self.headroom)
+    }
+
+    /// The smallest cap whose certified share reaches `fraction`, bracketed from `guess` (a cap
+    /// known or expected to reach it); `Ok(None)` if no cap up to the rate ceiling does, `Err`
+    /// if the program fails on the way.
+    fn smallest_cap(&self, fraction: f64, guess: Option<f64>) -> Result<Option<f64>, ()> {
+        let reaches = |cap: f64| self.share(cap).map(|s| s >= fraction).ok_or(());
+        let mut hi = guess.unwrap_or(self.ceiling).min(self.ceiling);
+        let mut grown = 0;
+        while !reaches(hi)? {
+            if hi >= self.ceiling || grown > 40 {
+                return Ok(None);
+            }
+            hi = (hi * 16.0).min(self.ceiling);
+            grown += 1;
+        }
+        let mut lo = hi / 16.0;
+        let mut shrunk = 0;
+        while reaches(lo)? {
+            hi = lo;
+            lo /= 16.0;
+            shrunk += 1;
+            if shrunk > 200 {
+                return Ok(Some(hi));
+            }
+        }
+        while hi / lo > 1.0 + FRONTIER_TOLERANCE {
+            let mid = (lo * hi).sqrt();
+            if reaches(mid)? {
+                hi = mid;
+            } else {
+                lo = mid;
+            }
+        }
+        Ok(Some(hi))
+    }
+
+    /// The table for `fractions` (bracketed by the tree design's speeds) and a curve of 41
+    /// points spanning it; `None` if the capped program fails anywhere.
+    #[allow(clippy::type_complexity)]
+    fn table(
+        &self,
+        fractions: &[f64],
+        tree_speeds: &[(f64, Option<f64>)],
+    ) -> Option<(Vec<(f64, Speed)>, Vec<(f64, f64)>)> {
+        let mut speeds = Vec::with_capacity(fractions.len());
+        for (&fraction, &(_, guess)) in fractions.iter().zip(tree_speeds) {
+            let need = match self.smallest_cap(fraction, guess.map(|g| g.min(self.fastest))) {
+                Ok(Some(cap)) => Speed::Reached(cap),
+                Ok(None) => Speed::NotReached,
+                Err(()) => Speed::NotDetermined,
+            };
+            speeds.push((fraction, need));
+        }
+        if speeds.iter().all(|(_, s)| *s == Speed::NotDetermined) {
+            return None;
+        }
+        let reached: Vec<f64> = speeds.iter().filter_map(|(_, s)| s.rate()).collect();
+        let (lo, hi) = match (reached.first(), reached.last()) {
+            (Some(&lo), Some(&hi)) => (lo / 30.0, hi * 3.0),
+            _ => return Some((speeds, Vec::new())),
+        };
+        // Points where the program fails are left out of the curve, not guessed.
+        let curve = crate::numeric::log_spaced(lo, hi, 41)
+            .into_iter()
+            .filter_map(|cap| self.share(cap).map(|s| (cap, s)))
+            .collect();
+        Some((speeds, curve))
+    }
 }
 
 /// Largest network whose all-pairs tree design is a star on the most probable state (one hop
@@ -425,7 +588,7 @@ pub fn candidates(n: usize, pairs: &PairSelection) -> Vec<Candidate> {
     }
 }
 
-/// The exact best design with every added rate at most `cap` (pathways with negligible traffic
+/// The exact best design with every added rate at most `cap` (pathways with negligible net flux
 /// dropped), verified.
 pub fn capped_design(
     network: &Network,
@@ -434,14 +597,18 @@ pub fn capped_design(
 ) -> Result<VerifiedDesign, SolveError> {
     let objective = Objective::new(network);
     let list = candidates(network.len(), pairs);
-    let solution = conic::capped(&objective, &list, cap, conic::TIGHT)?;
-    let traffic: Vec<f64> = solution
+    let start = steady::solve(network, &SteadySettings::default())?.probabilities;
+    let solution = super::capped::best(&objective, &list, cap, &start)?;
+    // A pathway whose net flux is negligible beside the busiest one's only adds a detailed-
+    // balanced link (an interior-point solution keeps every unused pair strictly inside its
+    // caps, with f = g): it is left out.
+    let net: Vec<f64> = solution
         .forward_flux
         .iter()
         .zip(&solution.backward_flux)
-        .map(|(f, g)| f + g)
+        .map(|(f, g)| (f - g).abs())
         .collect();
-    let busiest = traffic.iter().copied().fold(0.0, f64::max);
+    let busiest = net.iter().copied().fold(0.0, f64::max);
     let mut pathways = Vec::new();
     let mut predicted = objective.value(
         &solution.p,
@@ -453,7 +620,7 @@ pub fn capped_design(
     );
     for (e, c) in list.iter().enumerate() {
         let (f, g) = (solution.forward_flux[e], solution.backward_flux[e]);
-        if traffic[e] <= 1e-7 * busiest || f <= 0.0 || g <= 0.0 {
+        if net[e] <= 1e-9 * busiest || f <= 0.0 || g <= 0.0 {
             continue;
         }
         predicted -= (f - g) * (f / g).ln();

@@ -8,6 +8,7 @@
 //! and (in [`design`]) the attaining tree design, its speed table and the rate-capped design.
 //! All quantities are in kT and the model's time unit. No I/O, no printing.
 
+pub mod capped;
 pub mod closed_form;
 pub mod conic;
 pub mod design;

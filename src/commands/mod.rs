@@ -412,7 +412,7 @@ pub fn bench(request: &BenchRequest) -> Result<String, Error> {
             "benchmark size {bad} is too small: give sizes of at least 4 states"
         )));
     }
-    let families = [Family::Banded, Family::RandomChords];
+    let families = Family::ALL;
     let runs = request.runs.max(1);
     let (table, csv) = steady_tables(&time_steady(&request.steady_sizes, &families, runs)?);
     let steady_path = request.out_dir.join("steady.csv");
@@ -528,10 +528,8 @@ pub fn bound_on(model: &Model, request: &BoundRequest) -> Result<String, Error> 
         model,
         &solved,
         &pairs,
-        attaining.design.as_ref(),
+        &attaining,
         request.target,
-        &attaining.speeds,
-        &attaining.curve,
         capped.as_ref().map(|(c, d)| (*c, d)),
         &closed_forms_of(net, &pairs, &solved),
     );

@@ -5,7 +5,7 @@
 use super::precision::PrecisionJson;
 use super::table::{bounded, num, percent, wrap, Align, Table};
 use super::{named_distribution, named_log_distribution, StateProbability, UnitsJson};
-use crate::bound::design::VerifiedDesign;
+use crate::bound::design::{Attaining, Speed, SpeedBasis, VerifiedDesign};
 use crate::bound::{closed_form, Bound};
 use crate::model::{Model, PairSelection};
 use serde::Serialize;
@@ -86,8 +86,41 @@ pub struct DesignJson {
 #[derive(Debug, Clone, Serialize)]
 pub struct SpeedRow {
     pub fraction: f64,
-    /// Largest added rate needed, per time unit.
+    /// Rate cap needed, per time unit (`null` unless `status` is `reached`).
     pub speed: Option<f64>,
+    pub status: SpeedStatus,
+}
+
+/// Whether a speed-table entry is a number.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SpeedStatus {
+    Reached,
+    NotReached,
+    NotDetermined,
+}
+
+impl SpeedRow {
+    fn of(fraction: f64, speed: Speed) -> Self {
+        let status = match speed {
+            Speed::Reached(_) => SpeedStatus::Reached,
+            Speed::NotReached => SpeedStatus::NotReached,
+            Speed::NotDetermined => SpeedStatus::NotDetermined,
+        };
+        Self {
+            fraction,
+            speed: speed.rate(),
+            status,
+        }
+    }
+
+    fn text(&self) -> String {
+        match (self.status, self.speed) {
+            (SpeedStatus::Reached, Some(s)) => num(s),
+            (SpeedStatus::NotDetermined, _) => "not determined".into(),
+            _ => "not reached".into(),
+        }
+    }
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -119,13 +152,18 @@ pub struct BoundReport {
     pub baseline_distribution: Vec<StateProbability>,
     pub design: Option<DesignJson>,
     pub target_fraction: f64,
+    /// The rate cap needed for each share: `speed_basis` says whether it is the exact frontier
+    /// (smallest cap at which some design reaches the share) or the tree design's own scaling.
     pub speed_table: Vec<SpeedRow>,
+    pub speed_basis: SpeedBasis,
     pub rate_capped: Option<CappedJson>,
     /// Why the rate-capped design is missing when a cap was asked for.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub rate_capped_failure: Option<CappedFailure>,
-    /// `(largest added rate, share of the headroom)` along the tree design.
+    /// `(rate cap, share of the headroom)` along the speed basis.
     pub speed_curve: Vec<(f64, f64)>,
+    /// `(largest added rate, share of the headroom)` along the tree design.
+    pub tree_speed_curve: Vec<(f64, f64)>,
     pub regime: RegimeJson,
     pub closed_forms: ClosedForms,
     /// Fluctuations of the baseline's work current (methods, section 12); set by the command.
@@ -237,10 +275,8 @@ impl BoundReport {
         model: &Model,
         bound: &Bound,
         pairs: &PairSelection,
-        design: Option<&VerifiedDesign>,
+        attaining: &Attaining,
         target_fraction: f64,
-        speeds: &[(f64, Option<f64>)],
-        curve: &[(f64, f64)],
         capped: Option<(f64, &VerifiedDesign)>,
         forms: &closed_form::ClosedForms,
     ) -> Self {
@@ -257,13 +293,19 @@ impl BoundReport {
             maintenance_cost: u.from_kt(bound.maintenance),
             optimal_distribution: named_log_distribution(model, &bound.log_p),
             baseline_distribution: named_distribution(model, &bound.baseline),
-            design: design.map(|d| DesignJson::new(d, model, bound)),
+            design: attaining
+                .design
+                .as_ref()
+                .map(|d| DesignJson::new(d, model, bound)),
             target_fraction,
-            speed_table: speeds
+            speed_table: attaining
+                .speeds
                 .iter()
-                .map(|&(fraction, speed)| SpeedRow { fraction, speed })
+                .map(|&(fraction, speed)| SpeedRow::of(fraction, speed))
                 .collect(),
-            speed_curve: curve.to_vec(),
+            speed_basis: attaining.basis,
+            speed_curve: attaining.curve.clone(),
+            tree_speed_curve: attaining.tree_curve.clone(),
             regime: RegimeJson::of(forms),
             closed_forms: ClosedForms::of(forms, u),
             rate_capped_failure: None,
@@ -272,7 +314,7 @@ impl BoundReport {
                 design: DesignJson::new(d, model, bound),
             }),
             precision: None,
-            cautions: bound_cautions(model, design, capped),
+            cautions: bound_cautions(model, attaining.design.as_ref(), capped),
         }
     }
 
@@ -319,11 +361,14 @@ impl BoundReport {
             Some(d) => {
                 out.push_str(&format!("\nAttaining design at {} of the headroom (fewest pathways; tree design):\n", percent(self.target_fraction)));
                 out.push_str(&design_text(d, &self.units));
-                let mut speed = Table::new(&[("share of headroom", Align::Right), (&format!("largest added rate /{t}"), Align::Right)]);
+                let (heading, column) = speed_heading(self.speed_basis);
+                let mut speed = Table::new(&[("share of headroom", Align::Right), (&format!("{column} /{t}"), Align::Right)]);
                 for row in &self.speed_table {
-                    speed.row(vec![percent(row.fraction), row.speed.map_or("not reached".into(), num)]);
+                    speed.row(vec![percent(row.fraction), row.text()]);
                 }
-                out.push_str("\nHow fast the added pathways must be:\n");
+                out.push('\n');
+                out.push_str(&wrap(heading, "", 78));
+                out.push('\n');
                 out.push_str(&speed.render());
             }
         }
@@ -482,10 +527,15 @@ impl BoundReport {
 
         let mut speed = Csv::new(&[
             "fraction_of_headroom".to_string(),
-            with_unit("largest_added_rate", &per(t)),
+            with_unit("rate_needed", &per(t)),
+            "basis".to_string(),
         ]);
+        let basis = match self.speed_basis {
+            SpeedBasis::Frontier => "frontier",
+            SpeedBasis::TreeDesign => "tree_design",
+        };
         for r in &self.speed_table {
-            speed.row(vec![r.fraction.into(), r.speed.into()]);
+            speed.row(vec![r.fraction.into(), r.speed.into(), basis.into()]);
         }
         vec![
             ("summary", summary.finish()),
@@ -560,44 +610,58 @@ impl BoundReport {
         out
     }
 
-    /// Share of the headroom against the largest added rate: the tree design's curve, the speed
-    /// table's points, the exact capped design, and the universal bound as a dashed line.
+    /// Share of the headroom against the rate cap: the frontier (or, beyond its size limit, the
+    /// tree design's curve alone), the tree design's own curve, the speed table's points, the
+    /// exact capped design, and the universal bound as a dashed line.
     pub fn svg(&self) -> Option<String> {
         use super::svg::{Chart, Series};
-        if self.speed_curve.is_empty() {
+        let spans = [&self.speed_curve, &self.tree_speed_curve];
+        let lo = spans
+            .iter()
+            .filter_map(|c| c.first())
+            .map(|p| p.0)
+            .fold(f64::INFINITY, f64::min);
+        let hi = spans
+            .iter()
+            .filter_map(|c| c.last())
+            .map(|p| p.0)
+            .fold(0.0, f64::max);
+        if lo.partial_cmp(&hi) != Some(std::cmp::Ordering::Less) {
             return None;
         }
-        let (lo, hi) = (
-            self.speed_curve[0].0,
-            self.speed_curve[self.speed_curve.len() - 1].0,
-        );
-        let mut series = vec![
-            Series {
-                name: "tree design".into(),
-                points: self.speed_curve.clone(),
-                dashed: false,
-                markers: false,
-                joined: true,
-            },
-            Series {
-                name: "universal bound".into(),
-                points: vec![(lo, 1.0), (hi, 1.0)],
-                dashed: true,
-                markers: false,
-                joined: true,
-            },
-            Series {
+        let line = |name: &str, points: &[(f64, f64)], dashed: bool| Series {
+            name: name.into(),
+            points: points.to_vec(),
+            dashed,
+            markers: false,
+            joined: true,
+        };
+        let mut series = Vec::new();
+        if self.speed_basis == SpeedBasis::Frontier && !self.speed_curve.is_empty() {
+            series.push(line(
+                "frontier (best design at each cap)",
+                &self.speed_curve,
+                false,
+            ));
+        }
+        if !self.tree_speed_curve.is_empty() {
+            series.push(line("tree design scaled", &self.tree_speed_curve, false));
+        }
+        series.push(line("universal bound", &[(lo, 1.0), (hi, 1.0)], true));
+        let table: Vec<(f64, f64)> = self
+            .speed_table
+            .iter()
+            .filter_map(|r| r.speed.map(|s| (s, r.fraction)))
+            .collect();
+        if !table.is_empty() {
+            series.push(Series {
                 name: "speed table".into(),
-                points: self
-                    .speed_table
-                    .iter()
-                    .filter_map(|r| r.speed.map(|s| (s, r.fraction)))
-                    .collect(),
+                points: table,
                 dashed: false,
                 markers: true,
                 joined: false,
-            },
-        ];
+            });
+        }
         if let Some(c) = &self.rate_capped {
             if let Some(f) = c.design.fraction_of_headroom {
                 series.push(Series {
@@ -611,13 +675,27 @@ impl BoundReport {
         }
         let chart = Chart {
             title: format!("How fast added pathways must be: {}", self.title),
-            x_label: format!("largest added rate (per {})", self.units.time),
+            x_label: format!("rate cap: largest added rate (per {})", self.units.time),
             y_label: "share of the headroom reached".into(),
             log_x: true,
             log_y: false,
             series,
         };
         Some(chart.render())
+    }
+}
+
+/// The speed table's heading and rate column for its basis.
+fn speed_heading(basis: SpeedBasis) -> (&'static str, &'static str) {
+    match basis {
+        SpeedBasis::Frontier => (
+            "How fast added pathways must be: the smallest per-pathway rate cap at which some design on the allowed pairs reaches each share (the exact capped program, certified; no design with every rate below it does):",
+            "smallest rate cap",
+        ),
+        SpeedBasis::TreeDesign => (
+            "How fast the tree design above must be: the largest added rate it needs for each share (one design scaled up, so an upper bound on the smallest cap; the exact frontier is computed up to 60 states):",
+            "tree design's largest rate",
+        ),
     }
 }
 

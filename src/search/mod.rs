@@ -11,7 +11,7 @@
 pub mod evaluate;
 pub mod local;
 
-use crate::bound::conic::{self, Candidate};
+use crate::bound::conic::Candidate;
 use crate::bound::design::{verify, Pathway};
 use crate::bound::objective::Objective;
 use crate::model::Network;
@@ -377,6 +377,8 @@ impl Ranking {
 pub struct Searcher<'a> {
     network: &'a Network,
     objective: Objective,
+    /// The baseline steady state: where the capped relaxation's barrier path starts.
+    start: Vec<f64>,
     evaluator: Evaluator,
     candidates: Vec<Vec<(usize, usize)>>,
     settings: SearchSettings,
@@ -406,9 +408,12 @@ impl<'a> Searcher<'a> {
                 "a design search needs a rate budget: give --rate-cap K or --total-rate T (or rate_cap / total_rate in [pathways]); without one the best designs need unbounded rates, and `ergopath bound` gives their limit".into(),
             ));
         }
+        let start =
+            crate::steady::solve(network, &crate::steady::SteadySettings::default())?.probabilities;
         Ok(Self {
             network,
             objective: Objective::new(network),
+            start,
             evaluator: Evaluator::new(network),
             candidates,
             settings,
@@ -638,7 +643,7 @@ impl<'a> Searcher<'a> {
             .flat_map(|&i| &self.candidates[i])
             .map(|&(a, b)| Candidate { a, b })
             .collect();
-        let s = conic::capped(&self.objective, &list, cap, conic::TIGHT)
+        let s = crate::bound::capped::best(&self.objective, &list, cap, &self.start)
             .map_err(|e| RelaxationGap::SolverFailed(e.to_string()))?;
         let dual_bound = s.dual_bound.ok_or(RelaxationGap::NotFullyAccurate)?;
         let log_p: Vec<f64> = s.p.iter().map(|x| x.max(1e-300).ln()).collect();

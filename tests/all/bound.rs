@@ -672,3 +672,140 @@ proptest! {
         prop_assert!(b.power >= b.baseline_power - 1e-9 * b.baseline_power.abs().max(1e-12));
     }
 }
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 120, rng_seed: crate::common::PROPTEST_SEED, ..ProptestConfig::default() })]
+
+    /// Methods, section 5: the barrier path's certified upper value is never below the power
+    /// of the design it returns, checked by an independent steady-state solve of baseline plus
+    /// added rates, and the two meet to the stated gap.
+    #[test]
+    fn capped_certificate_holds_over_the_verified_design(net in network_strategy(6), log_cap in -1.0f64..4.0) {
+        use ergopath::bound::{capped, objective::Objective};
+        let cap = 10f64.powf(log_cap);
+        let objective = Objective::new(&net);
+        let list = design::candidates(net.len(), &PairSelection::All);
+        let start = steady::solve(&net, &SteadySettings::default()).unwrap().probabilities;
+        let solution = capped::best(&objective, &list, cap, &start);
+        prop_assume!(solution.is_ok(), "refused: {:?}", solution.err());
+        let solution = solution.unwrap();
+        prop_assume!(solution.route == capped::CappedRoute::Barrier, "left to the conic program");
+        let upper = solution.dual_bound.unwrap();
+        let designed = design::capped_design(&net, &PairSelection::All, cap).unwrap();
+        let verified = designed.verified;
+        prop_assert!(upper >= verified.power - verified.roundoff, "upper {upper} below the verified design {}", verified.power);
+        let scale = upper.abs().max(verified.power.abs()) + 1e-9 * net.max_rate();
+        prop_assert!(upper - verified.power <= 1e-6 * scale, "gap {} at scale {scale}: upper {upper}, verified {}, predicted {}", upper - verified.power, verified.power, designed.predicted_power);
+    }
+}
+
+/// The barrier path against Clarabel's exponential-cone program (Goulart and Chen 2024, an
+/// independent interior-point solver) where Clarabel reaches full accuracy: the same optimum
+/// to 1e-8 relative (Clarabel's tolerance is 1e-10; measured agreement 1e-9 or better).
+#[test]
+fn capped_barrier_path_agrees_with_the_conic_program() {
+    use ergopath::bound::{capped, conic, objective::Objective};
+    let mut compared = 0;
+    for (path, caps) in [
+        ("problems/walker.toml", [10.0, 200.0, 1000.0]),
+        ("problems/ring6.toml", [10.0, 100.0, 300.0]),
+    ] {
+        let model = load(path);
+        let net = &model.network;
+        let objective = Objective::new(net);
+        let list = design::candidates(net.len(), &PairSelection::All);
+        let start = steady::solve(net, &SteadySettings::default())
+            .unwrap()
+            .probabilities;
+        for cap in caps {
+            let ours = capped::solve(&objective, &list, cap, &start, capped::TARGET_GAP).unwrap();
+            assert_eq!(ours.route, capped::CappedRoute::Barrier);
+            let Ok(theirs) = conic::capped(&objective, &list, cap, conic::TIGHT) else {
+                continue;
+            };
+            if theirs.dual_bound.is_none() {
+                continue; // reduced accuracy
+            }
+            // Clarabel's primal point scored by the program's objective: a feasible value (to its
+            // tolerance), so at most our certified upper value, and within 1e-8 of it.
+            let log_p: Vec<f64> = theirs.p.iter().map(|x| x.max(1e-300).ln()).collect();
+            let loss: f64 = theirs
+                .forward_flux
+                .iter()
+                .zip(&theirs.backward_flux)
+                .filter(|(f, g)| **f > 0.0 && **g > 0.0)
+                .map(|(f, g)| (f - g) * (f / g).ln())
+                .sum();
+            let their_value = objective.value(&theirs.p, &log_p) - loss;
+            let ours = ours.dual_bound.unwrap();
+            assert!(
+                their_value <= ours * (1.0 + 1e-10),
+                "{path} cap {cap}: Clarabel's {their_value} above our upper {ours}"
+            );
+            assert!(
+                close(ours, their_value, 1e-8, 0.0),
+                "{path} cap {cap}: {ours} vs {their_value}"
+            );
+            compared += 1;
+        }
+    }
+    assert!(compared >= 4, "Clarabel solved only {compared} cases");
+}
+
+/// Methods, section 11: the speed table is the exact frontier. Just above each tabulated cap the
+/// exact capped design (verified by its own steady-state solve) reaches the share; a little
+/// below it does not; and no design the search finds within the cap beats it.
+#[test]
+fn speed_frontier_is_reached_at_its_caps_and_beaten_by_no_design() {
+    for (path, extra) in [
+        ("problems/walker.toml", vec![]),
+        (
+            "tests/fixtures/stiff/pump-switching.toml",
+            vec!["--max-pathways", "2"],
+        ),
+    ] {
+        let v = crate::common::run_json(&["bound", path, "--json"]);
+        assert_eq!(v["speed_basis"], "frontier", "{path}");
+        let rows = v["speed_table"].as_array().unwrap();
+        let mut checked = 0;
+        for row in rows.iter().take(3) {
+            let (fraction, Some(cap)) = (row["fraction"].as_f64().unwrap(), row["speed"].as_f64())
+            else {
+                continue;
+            };
+            let share_at = |k: f64| {
+                let w = crate::common::run_json(&[
+                    "bound",
+                    path,
+                    "--rate-cap",
+                    &k.to_string(),
+                    "--json",
+                ]);
+                w["rate_capped"]["fraction_of_headroom"].as_f64().unwrap()
+            };
+            let above = share_at(cap * (1.0 + 1e-4));
+            assert!(
+                above >= fraction - 1e-7,
+                "{path}: {above} at {cap} for {fraction}"
+            );
+            let below = share_at(cap * (1.0 - 1e-2));
+            assert!(
+                below < fraction,
+                "{path}: {below} below {cap} for {fraction}"
+            );
+            let cap_text = cap.to_string();
+            let mut args = vec!["design", path, "--rate-cap", &cap_text, "--json", "-q"];
+            args.extend(extra.iter().copied());
+            let found = crate::common::run_json(&args);
+            let best = found["designs"][0]["fraction_of_headroom"]
+                .as_f64()
+                .unwrap();
+            assert!(
+                best <= fraction + 1e-7,
+                "{path}: a design reaches {best} within {cap}, above the frontier's {fraction}"
+            );
+            checked += 1;
+        }
+        assert!(checked >= 2, "{path}: {checked} rows checked");
+    }
+}

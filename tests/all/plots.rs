@@ -263,15 +263,15 @@ fn fresh_pictures_keep_their_text_inside_with_long_titles_and_missing_values() {
             ],
         );
     }
-    // The photoswitch's rate-capped relaxation is missing at every budget: its line is not
-    // drawn, so the legend must not list it.
+    // The photoswitch's rate-capped relaxation is missing at caps this large (double precision
+    // overflows in it): its line is not drawn, so the legend must not list it.
     ok(
         &dir,
         &[
             "sweep",
             photo,
             "--over",
-            "rate-cap=1..1e6",
+            "rate-cap=1e200..1e300",
             "--points",
             "3",
             "--max-pathways",

@@ -34,6 +34,7 @@ LABELS = {
     "from", "to", "label", "state", "cycle", "title", "file", "kind", "name", "parameter_unit",
     "regime", "predicted_regime", "route", "design", "pathways", "carried_over",
     "upper_bound_missing", "failure", "family", "method", "refused", "task", "their_outcome",
+    "basis",
 }
 # Columns of values that are set (grids, caps, levels), never computed by a solver.
 SET_VALUES = {

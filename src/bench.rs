@@ -144,7 +144,14 @@ fn labelled(n: usize, seed: u64, photon_every: Option<usize>) -> Network {
     let mut rng = SplitMix::new(seed);
     let energies = spread_energies(&mut rng, n);
     let mut channels = Vec::with_capacity(2 * n);
-    labelled_block(&mut rng, &energies, (0, n), photon_every, 0.0, &mut channels);
+    labelled_block(
+        &mut rng,
+        &energies,
+        (0, n),
+        photon_every,
+        0.0,
+        &mut channels,
+    );
     Network { energies, channels }
 }
 
@@ -166,13 +173,27 @@ fn switching(n: usize, seed: u64) -> Network {
     for e in 0..ENVIRONMENTS {
         let mut copy = SplitMix::new(seed ^ 0x5eed);
         let block = (e * system, system);
-        labelled_block(&mut copy, &energies, block, None, 2.0 * e as f64, &mut channels);
+        labelled_block(
+            &mut copy,
+            &energies,
+            block,
+            None,
+            2.0 * e as f64,
+            &mut channels,
+        );
     }
     for e in 0..ENVIRONMENTS {
         let next = (e + 1) % ENVIRONMENTS;
         for s in 0..system {
             let (from, to) = (e * system + s, next * system + s);
-            channels.push(Channel::balanced(&energies, from, to, SWITCHING_RATE, 0.0, 0.0));
+            channels.push(Channel::balanced(
+                &energies,
+                from,
+                to,
+                SWITCHING_RATE,
+                0.0,
+                0.0,
+            ));
         }
     }
     Network { energies, channels }
@@ -507,9 +528,17 @@ mod tests {
         for family in Family::ALL {
             for n in [30, 301] {
                 let net = synthetic(family, n, 7);
-                assert_eq!(net.len(), n - n % ENVIRONMENTS * (family == Family::Switching) as usize, "{}", family.name());
+                assert_eq!(
+                    net.len(),
+                    n - n % ENVIRONMENTS * (family == Family::Switching) as usize,
+                    "{}",
+                    family.name()
+                );
                 assert_eq!(net.components().len(), 1, "{}", family.name());
-                assert!(net.channels.iter().all(|c| c.forward > 0.0 && c.backward > 0.0));
+                assert!(net
+                    .channels
+                    .iter()
+                    .all(|c| c.forward > 0.0 && c.backward > 0.0));
             }
         }
     }

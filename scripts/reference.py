@@ -888,6 +888,57 @@ def bound_mp_fixtures(cvxpy_values):
               f"bracket {float(bracket):.1e}, {result['steps']} Newton steps")
 
 
+DESIGNS = ROOT / "tests" / "fixtures" / "designs"
+
+
+def design_power_mp(model, pathways):
+    """Harvesting power (kT per time unit) of the model plus added pathways, at 50 digits. Each
+    pathway is (a, b, forward, backward); its work per forward jump follows from local detailed
+    balance with zero drive, w = E_a - E_b - ln(forward / backward) (methods, section 4)."""
+    energy = model["energy"]
+    added = []
+    for a, b, kf, kb in pathways:
+        kf, kb = mp.mpf(kf), mp.mpf(kb)
+        added.append((a, b, kf, kb, energy[a] - energy[b] - mp.log(kf / kb), mp.mpf(0)))
+    joint = dict(model, channels=model["channels"] + added)
+    _, power, _, _ = observables(joint, steady_mp(joint))
+    return power
+
+
+def design_fixtures():
+    """Writes tests/fixtures/designs/<model>.json: every design the demo saved for a shipped
+    model (the bound's attaining and rate-capped designs, the search's ranked designs; rates as
+    committed in results/<model>/*.json) with its power at 50 digits."""
+    DESIGNS.mkdir(parents=True, exist_ok=True)
+    for path in sorted((ROOT / "problems").glob("*.toml")):
+        model = load_model(path)
+        index = {name: i for i, name in enumerate(model["names"])}
+        found = ROOT / "results" / path.stem
+        designs = []
+        bound = json.loads((found / "bound.json").read_text())
+        for key in ("design", "rate_capped"):
+            if bound.get(key):
+                designs.append((f"bound.json {key}", bound[key]))
+        search = found / "design.json"
+        if search.exists():
+            for d in json.loads(search.read_text())["designs"]:
+                designs.append((f"design.json rank {d['rank']}", d))
+        cases = []
+        for source, d in designs:
+            pathways = [(index[w["from"]], index[w["to"]], w["forward"], w["backward"])
+                        for w in d["pathways"]]
+            power = design_power_mp(model, pathways) / model["to_kt"]
+            cases.append({
+                "source": source,
+                "pathways": [{"from": w["from"], "to": w["to"], "forward": w["forward"],
+                              "backward": w["backward"]} for w in d["pathways"]],
+                "power_model_unit": mp_digits(power),
+            })
+        fixture = {"model": str(path.relative_to(ROOT)), "designs": cases}
+        (DESIGNS / f"{path.stem}.json").write_text(json.dumps(fixture, indent=1) + "\n")
+        print(f"tests/fixtures/designs/{path.stem}.json: {len(cases)} designs at 50 digits")
+
+
 def main():
     MODELS.mkdir(parents=True, exist_ok=True)
     OUT.mkdir(parents=True, exist_ok=True)
@@ -906,6 +957,7 @@ def main():
         print(f"{path.relative_to(ROOT)}: reference written")
     precision_fixtures(paths)
     bound_mp_fixtures(cvxpy_values)
+    design_fixtures()
     return 0
 
 

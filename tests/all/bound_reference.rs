@@ -76,3 +76,61 @@ fn bounds_match_the_fifty_digit_reference() {
         );
     }
 }
+
+/// Every design the demo saved for a shipped model (attaining, rate-capped, ranked), its power
+/// from the tool's verification (a double-precision steady-state solve of baseline plus added
+/// rates) against `scripts/reference.py`'s `design_power_mp`: the same network's steady state
+/// at 50 digits, the added pathways' work from local detailed balance there.
+#[test]
+fn design_powers_match_the_fifty_digit_reference() {
+    use ergopath::bound::design::{self, Pathway};
+    let dir = root().join("tests/fixtures/designs");
+    let mut checked = 0;
+    let mut worst: f64 = 0.0;
+    for entry in std::fs::read_dir(&dir).unwrap() {
+        let fixture: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(entry.unwrap().path()).unwrap()).unwrap();
+        let model = crate::common::load(fixture["model"].as_str().unwrap());
+        let net = &model.network;
+        for case in fixture["designs"].as_array().unwrap() {
+            let pathways: Vec<Pathway> = case["pathways"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|w| {
+                    let at = |key: &str| model.state_index(w[key].as_str().unwrap()).unwrap();
+                    let rate = |key: &str| w[key].as_f64().unwrap();
+                    Pathway::with_rates(
+                        net,
+                        at("from"),
+                        at("to"),
+                        rate("forward"),
+                        rate("backward"),
+                    )
+                })
+                .collect();
+            let verified = design::verify(net, &pathways).unwrap();
+            let ours = model.units.from_kt(verified.power);
+            let roundoff = model.units.from_kt(verified.roundoff);
+            let reference = number(&case["power_model_unit"]);
+            let error = (ours - reference).abs();
+            // The tool's own round-off bound must cover its error, and the error must be small:
+            // measured below 1e-14 relative; 1e-12 leaves a margin of 100.
+            assert!(
+                error <= roundoff.max(1e-12 * reference.abs()),
+                "{} {}: {ours} vs {reference} (round-off bound {roundoff})",
+                fixture["model"],
+                case["source"]
+            );
+            assert!(
+                error <= 1e-12 * reference.abs(),
+                "{}: {error}",
+                case["source"]
+            );
+            worst = worst.max(error / reference.abs());
+            checked += 1;
+        }
+    }
+    assert!(checked >= 30, "{checked} designs checked");
+    eprintln!("designs: {checked}, worst relative error {worst:.1e}");
+}

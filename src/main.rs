@@ -91,6 +91,12 @@ enum Command {
     Sensitivity {
         /// Model file (TOML)
         model: PathBuf,
+        /// Also differentiate a saved design's power (its added rates held fixed): design.json (see --rank) or bound.json
+        #[arg(long, value_name = "FILE")]
+        design: Option<PathBuf>,
+        /// Which ranked design of --design FILE (1 = the best)
+        #[arg(long, value_name = "N", default_value_t = 1)]
+        rank: usize,
         #[command(flatten)]
         format: FormatFlags,
         #[command(flatten)]
@@ -594,9 +600,16 @@ fn main() -> ExitCode {
         ),
         Command::Sensitivity {
             model,
+            design,
+            rank,
             format,
             save,
-        } => commands::sensitivity(model, format.format(), save.root().as_deref()),
+        } => commands::sensitivity(
+            model,
+            design.as_deref().map(|d| (d, *rank)),
+            format.format(),
+            save.root().as_deref(),
+        ),
         Command::Bound {
             model,
             pairs,

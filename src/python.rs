@@ -484,7 +484,7 @@ fn dispatch(
         }
         "steady" => commands::steady_on(single(models, job)?, format, save.as_deref()),
         "sensitivity" => in_threads(&|| {
-            commands::sensitivity_on(single(models, job)?, format, save.as_deref())
+            commands::sensitivity_on(single(models, job)?, None, format, save.as_deref())
         }),
         "bound" => commands::bound_on(
             single(models, job)?,

@@ -8,9 +8,11 @@
 //! (no re-optimisation). The power's derivative differentiates the steady state. Both are
 //! central differences with a Richardson step (`h` and `h/2`), whose difference is the stated
 //! error estimate; a derivative whose estimate exceeds 1% of it is reported as such by the
-//! report. Owns the perturbation of a network by one parameter; it must not print or read
-//! files.
+//! report. Also the derivatives of a given design's power, its added rates held fixed
+//! ([`design_power`]). Owns the perturbation of a network by one parameter; it must not print
+//! or read files.
 
+use crate::bound::design::Pathway;
 use crate::bound::Bound;
 use crate::model::{Channel, Model, Network};
 use crate::steady::{self, SolveError, SteadySettings};
@@ -270,6 +272,123 @@ fn adjoint(
     Ok((lambda, correction))
 }
 
+/// The power's derivative sums of `network` for `parameters` (indices into its own channels
+/// and states): `(value, sum of magnitudes)` and `(_, adjoint error)` per parameter, from the
+/// steady state and its adjoint (methods, section 10).
+#[allow(clippy::type_complexity)]
+fn power_sums(
+    network: &Network,
+    parameters: &[Parameter],
+    temperature: f64,
+) -> Result<(Vec<(f64, f64)>, Vec<(f64, f64)>), SolveError> {
+    let (state, factors) = steady::solve_factored(network, &SteadySettings::default())?;
+    let p = state.probabilities;
+    let (lambda, correction) = adjoint(network, &p, &factors)?;
+    let (flux, backward_inflow) = fluxes_at(network, &p);
+    let difference = |v: &[f64], c: &Channel| v[c.to] - v[c.from];
+    let power = Linearised {
+        network,
+        flux,
+        backward_inflow,
+        weight: network
+            .channels
+            .iter()
+            .map(|c| c.work - difference(&lambda, c))
+            .collect(),
+        work_explicit: 1.0,
+        energy_explicit: 0.0,
+    };
+    // The same sums with the refinement correction in place of the weights bound the error the
+    // adjoint leaves.
+    let power_error = Linearised {
+        network,
+        flux: power.flux.iter().map(|j| j.abs()).collect(),
+        backward_inflow: power.backward_inflow.clone(),
+        weight: network
+            .channels
+            .iter()
+            .map(|c| difference(&correction, c).abs())
+            .collect(),
+        work_explicit: 0.0,
+        energy_explicit: 0.0,
+    };
+    Ok((
+        power.all(parameters, temperature),
+        power_error.all(parameters, temperature),
+    ))
+}
+
+/// The derivative of a design's power (baseline plus `pathways`, the added rates held fixed)
+/// with respect to every parameter of `model`, in the order of [`parameters`].
+///
+/// With the added rates fixed, a state energy moves each added pathway's work label
+/// (`w = E_from - E_to - ln(forward / backward)`, zero drive) instead of its backward rate, so
+/// an energy's derivative is the joint network's (labels fixed) plus the work derivatives of
+/// the pathways at that state (plus for `from`, minus for `to`); the temperature's follows from
+/// the corrected energies and the baseline's labels, as in [`Linearised::all`].
+pub fn design_power(model: &Model, pathways: &[Pathway]) -> Result<Vec<Derivative>, SolveError> {
+    let base = &model.network;
+    let mut joint = base.clone();
+    joint.channels.extend(pathways.iter().map(|w| w.channel()));
+    let t = model.units.temperature;
+    let own = parameters(model);
+    let added = (0..pathways.len()).map(|e| Parameter {
+        kind: ParameterKind::Work,
+        index: base.channels.len() + e,
+    });
+    let asked: Vec<Parameter> = own
+        .iter()
+        .copied()
+        .filter(|p| p.kind != ParameterKind::Temperature)
+        .chain(added)
+        .collect();
+    let (values, errors) = power_sums(&joint, &asked, t)?;
+    let eps = 16.0 * f64::EPSILON;
+    let derivative = |i: usize| Derivative {
+        value: values[i].0,
+        error: errors[i].1 + eps * values[i].1,
+    };
+    let first_added = asked.len() - pathways.len();
+    let mut out: Vec<Derivative> = (0..first_added).map(derivative).collect();
+    for (e, w) in pathways.iter().enumerate() {
+        let d = derivative(first_added + e);
+        for (state, sign) in [(w.from, 1.0), (w.to, -1.0)] {
+            if let Some(i) = own
+                .iter()
+                .position(|p| p.kind == ParameterKind::Energy && p.index == state)
+            {
+                out[i].value += sign * d.value;
+                out[i].error += d.error;
+            }
+        }
+    }
+    if own.iter().any(|p| p.kind == ParameterKind::Temperature) {
+        // dF/dT = -sum_x (dF/dx) x / T0 over the energies and the baseline's labels (kT).
+        let mut temperature = Derivative {
+            value: 0.0,
+            error: 0.0,
+        };
+        for (p, d) in own.iter().zip(&out) {
+            let x = match p.kind {
+                ParameterKind::Energy => base.energies[p.index],
+                ParameterKind::Work => base.channels[p.index].work,
+                ParameterKind::Drive => base.channels[p.index].drive,
+                _ => continue,
+            };
+            temperature.value -= d.value * x / t;
+            temperature.error += d.error * x.abs() / t;
+        }
+        out.push(temperature);
+    }
+    if let Some(bad) = out.iter().position(|d| !d.value.is_finite()) {
+        return Err(SolveError::Unresolved(format!(
+            "the design's derivative with respect to {:?} {} is not finite; fix: rescale the rates that span many decades",
+            own[bad].kind, own[bad].index
+        )));
+    }
+    Ok(out)
+}
+
 /// A sparse LU of `R^T` with the most probable state's row and column removed (its `lambda`
 /// is zero).
 fn transposed_lu(
@@ -312,37 +431,8 @@ fn solve_reduced(lu: &crate::linalg::SparseLu, reference: usize, rhs: &[f64]) ->
 pub fn analyse(model: &Model, bound: &Bound) -> Result<Vec<Sensitivity>, SolveError> {
     let network = &model.network;
     let t = model.units.temperature;
-    let (state, factors) = steady::solve_factored(network, &SteadySettings::default())?;
-    let p = state.probabilities;
-    let (lambda, correction) = adjoint(network, &p, &factors)?;
-    let (flux, backward_inflow) = fluxes_at(network, &p);
-    let difference = |v: &[f64], c: &Channel| v[c.to] - v[c.from];
-    let power = Linearised {
-        network,
-        flux,
-        backward_inflow,
-        weight: network
-            .channels
-            .iter()
-            .map(|c| c.work - difference(&lambda, c))
-            .collect(),
-        work_explicit: 1.0,
-        energy_explicit: 0.0,
-    };
-    // The same sums with the refinement correction in place of the weights bound the error the
-    // adjoint leaves.
-    let power_error = Linearised {
-        network,
-        flux: power.flux.iter().map(|j| j.abs()).collect(),
-        backward_inflow: power.backward_inflow.clone(),
-        weight: network
-            .channels
-            .iter()
-            .map(|c| difference(&correction, c).abs())
-            .collect(),
-        work_explicit: 0.0,
-        energy_explicit: 0.0,
-    };
+    let all = parameters(model);
+    let (powers, errors) = power_sums(network, &all, t)?;
     let (flux, backward_inflow) = fluxes_at(network, &bound.p);
     let log_p = &bound.log_p;
     let envelope = Linearised {
@@ -363,12 +453,7 @@ pub fn analyse(model: &Model, bound: &Bound) -> Result<Vec<Sensitivity>, SolveEr
     };
     let gap = bound.relative_gap().sqrt();
     let eps = 16.0 * f64::EPSILON;
-    let all = parameters(model);
-    let (powers, errors, bounds) = (
-        power.all(&all, t),
-        power_error.all(&all, t),
-        envelope.all(&all, t),
-    );
+    let bounds = envelope.all(&all, t);
     all.iter()
         .zip(powers.iter().zip(&errors).zip(&bounds))
         .map(|(&parameter, ((&(dp, dp_terms), &(_, dp_adjoint)), &(db, db_terms)))| {

@@ -359,13 +359,33 @@ pub fn steady_on(model: &Model, format: Format, save_root: Option<&Path>) -> Res
 
 /// `ergopath sensitivity`: derivatives of the baseline power and of the universal bound with
 /// respect to every parameter, ranked by their effect on the headroom.
-pub fn sensitivity(path: &Path, format: Format, save_root: Option<&Path>) -> Result<String, Error> {
-    sensitivity_on(&Model::load(path)?, format, save_root)
+pub fn sensitivity(
+    path: &Path,
+    design: Option<(&Path, usize)>,
+    format: Format,
+    save_root: Option<&Path>,
+) -> Result<String, Error> {
+    let model = Model::load(path)?;
+    let design = match design {
+        Some((file, rank)) => Some((
+            format!("{} rank {rank}", file.display()),
+            precision::read_ranked_design(file, &model, rank)?,
+        )),
+        None => None,
+    };
+    sensitivity_on(
+        &model,
+        design.as_ref().map(|(n, p)| (n.as_str(), p.as_slice())),
+        format,
+        save_root,
+    )
 }
 
-/// [`sensitivity`] on a model in memory.
+/// [`sensitivity`] on a model in memory, with a design (a name for the report and its
+/// pathways) whose power's derivatives join the table.
 pub fn sensitivity_on(
     model: &Model,
+    design: Option<(&str, &[crate::bound::design::Pathway])>,
     format: Format,
     save_root: Option<&Path>,
 ) -> Result<String, Error> {
@@ -375,7 +395,19 @@ pub fn sensitivity_on(
         &crate::bound::BoundSettings::default(),
     )?;
     let sensitivities = crate::sensitivity::analyse(model, &bound)?;
-    let report = crate::report::sensitivity::SensitivityReport::new(model, &bound, &sensitivities);
+    let designed = match design {
+        Some((name, pathways)) => Some((
+            name.to_string(),
+            crate::sensitivity::design_power(model, pathways)?,
+        )),
+        None => None,
+    };
+    let report = crate::report::sensitivity::SensitivityReport::new(
+        model,
+        &bound,
+        &sensitivities,
+        designed.as_ref().map(|(n, d)| (n.clone(), d.as_slice())),
+    );
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,

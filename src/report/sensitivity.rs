@@ -28,6 +28,12 @@ pub struct ParameterJson {
     /// is zero.
     pub power_elasticity: Option<f64>,
     pub bound_elasticity: Option<f64>,
+    /// With `--design FILE`: the derivative of that design's power (its added rates held
+    /// fixed), and its error bound.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub d_design_power: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub d_design_power_error: Option<f64>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -41,6 +47,9 @@ pub struct SensitivityReport {
     pub parameters: Vec<ParameterJson>,
     /// The model has environments: parameters are those of the joint chain, one per copy.
     pub joint_chain: bool,
+    /// The design given with `--design FILE` (its file and rank), if any.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub design: Option<String>,
 }
 
 /// Parameter value in the model's units (`None` for rates, whose elasticity is per `ln k`).
@@ -56,7 +65,14 @@ fn parameter_value(model: &Model, kind: ParameterKind, index: usize) -> Option<f
 }
 
 impl SensitivityReport {
-    pub fn new(model: &Model, bound: &Bound, sensitivities: &[Sensitivity]) -> Self {
+    /// `design`: a description of the design and its derivatives in the order of
+    /// `sensitivities`.
+    pub fn new(
+        model: &Model,
+        bound: &Bound,
+        sensitivities: &[Sensitivity],
+        design: Option<(String, &[Derivative])>,
+    ) -> Self {
         let u = &model.units;
         // Internal derivatives are per kT of energy-like parameters; per model energy unit a
         // derivative is that times kT per unit.
@@ -77,12 +93,14 @@ impl SensitivityReport {
         let (power, upper) = (u.from_kt(bound.baseline_power), u.from_kt(bound.power));
         let mut parameters: Vec<(f64, ParameterJson)> = sensitivities
             .iter()
-            .map(|s| {
+            .enumerate()
+            .map(|(i, s)| {
                 let (kind, index) = (s.parameter.kind, s.parameter.index);
                 let k = per_unit(kind);
                 let convert = |d: &Derivative| (u.from_kt(d.value) * k, u.from_kt(d.error) * k);
                 let ((dp, ep), (db, eb)) = (convert(&s.d_power), convert(&s.d_bound));
                 let x = parameter_value(model, kind, index);
+                let designed = design.as_ref().and_then(|(_, d)| d.get(i)).map(convert);
                 let json = ParameterJson {
                     kind,
                     name: parameter_name(model, kind, index),
@@ -94,6 +112,8 @@ impl SensitivityReport {
                     headroom_per_step: (db - dp) * natural_step(kind),
                     power_elasticity: elasticity(dp, power, x),
                     bound_elasticity: elasticity(db, upper, x),
+                    d_design_power: designed.map(|d| d.0),
+                    d_design_power_error: designed.map(|d| d.1),
                 };
                 ((db - dp).abs() * natural_step(kind), json)
             })
@@ -106,6 +126,7 @@ impl SensitivityReport {
             bound: upper,
             parameters: parameters.into_iter().map(|(_, p)| p).collect(),
             joint_chain: model.environments.is_some(),
+            design: design.map(|(name, _)| name),
         }
     }
 
@@ -127,15 +148,32 @@ impl SensitivityReport {
             ("per e-fold/kT/K", Align::Right),
             ("elasticity of bound", Align::Right),
         ]);
+        if self.design.is_some() {
+            table = Table::new(&[
+                ("parameter", Align::Left),
+                ("d bound", Align::Right),
+                ("d power", Align::Right),
+                ("d design power", Align::Right),
+                ("d headroom", Align::Right),
+                ("per e-fold/kT/K", Align::Right),
+                ("elasticity of bound", Align::Right),
+            ]);
+        }
         for q in self.parameters.iter().take(TEXT_ROWS) {
-            table.row(vec![
+            let mut row = vec![
                 q.name.clone(),
                 bounded(q.d_bound, q.d_bound_error),
                 bounded(q.d_power, q.d_power_error),
+            ];
+            if let (Some(d), Some(e)) = (q.d_design_power, q.d_design_power_error) {
+                row.push(bounded(d, e));
+            }
+            row.extend([
                 num(q.d_headroom),
                 num(q.headroom_per_step),
                 q.bound_elasticity.map_or("-".into(), num),
             ]);
+            table.row(row);
         }
         out.push_str(&table.render());
         if self.parameters.len() > TEXT_ROWS {
@@ -143,6 +181,10 @@ impl SensitivityReport {
                 "  ... {} more parameters of smaller effect: every one is in --json and --csv\n",
                 self.parameters.len() - TEXT_ROWS
             ));
+        }
+        if let Some(d) = &self.design {
+            out.push_str(&super::table::wrap(&format!("d design power: the power of the design {d}, its added rates held fixed (an energy then moves the added pathways' work labels, not their rates)."), "  ", 78));
+            out.push('\n');
         }
         if self.joint_chain {
             out.push_str(&super::table::wrap("This model has environments: each parameter is one copy in the joint chain (state@environment), moved alone; a physical parameter shared by all copies moves them together, the sum of their derivatives.", "  ", 78));
@@ -173,6 +215,8 @@ impl SensitivityReport {
             with_unit("headroom_per_step", p),
             "power_elasticity".into(),
             "bound_elasticity".into(),
+            with_unit("d_design_power", &per),
+            with_unit("d_design_power_error", &per),
         ]);
         for q in &self.parameters {
             let unit = match q.kind {
@@ -198,6 +242,8 @@ impl SensitivityReport {
                 q.headroom_per_step.into(),
                 q.power_elasticity.into(),
                 q.bound_elasticity.into(),
+                q.d_design_power.into(),
+                q.d_design_power_error.into(),
             ]);
         }
         table.finish()

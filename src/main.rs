@@ -44,9 +44,12 @@ enum Command {
     Reference,
     /// Validate a model file and summarise it (states, transitions, implied values, cycles)
     #[command(after_help = "Example:\n  ergopath check problems/walker.toml")]
+    #[command(mut_arg("csv", |a| a.help("Print a table as CSV: states (the default: energies), transitions (rates, drive, work, what LDB implied) or cycles; e.g. --csv=transitions")))]
     Check {
         /// Model file (TOML)
         model: PathBuf,
+        #[command(flatten)]
+        format: FormatFlags,
     },
     /// Steady state: probabilities, fluxes, harvesting power, drive power, entropy production
     #[command(after_help = "Example:\n  ergopath steady problems/walker.toml --json")]
@@ -550,7 +553,7 @@ fn main() -> ExitCode {
         }
         Command::Man => manual(),
         Command::Reference => Ok(ergopath::commands::MODEL_FORMAT.to_string()),
-        Command::Check { model } => commands::check(model),
+        Command::Check { model, format } => commands::check(model, format.format()),
         Command::Steady {
             model,
             format,

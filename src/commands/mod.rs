@@ -103,9 +103,16 @@ pub const CSV_TABLES: [&str; 13] = [
 ];
 
 /// `ergopath check`: validate and summarise.
-pub fn check(path: &Path) -> Result<String, Error> {
+pub fn check(path: &Path, format: Format) -> Result<String, Error> {
     let model = Model::load(path)?;
-    Ok(check_text(&model))
+    let report = crate::report::check::CheckReport::new(&model);
+    let rendered = Rendered {
+        text: check_text(&model),
+        json: to_json(&report)?,
+        tables: report.csv(&model),
+        svg: None,
+    };
+    emit(&model, "check", format, None, rendered)
 }
 
 /// The results folder name of a model: its file stem made safe ([`output::safe_name`]).

@@ -333,3 +333,27 @@ fn cycle_fluxes_and_affinities_decompose_the_steady_state() {
     assert!(per_turn[0].0.abs() < 1e-12 && (per_turn[0].1 - 16.0).abs() < 1e-12);
     assert!((per_turn[1].0 - 80.0).abs() < 1e-12 && per_turn[1].1.abs() < 1e-12);
 }
+
+/// `check --json` reports the backward rate that local detailed balance implies, against the
+/// value computed here from the exact 2019 SI Boltzmann constant (k_B = 1.380649e-23 J/K, exact
+/// by definition) and 1 pN nm = 1e-21 J: the walker's binding step (energies 0 and -10 pN nm,
+/// drive 60 pN nm, no work, forward 1000 /s) at 298.15 K.
+#[test]
+fn check_reports_the_backward_rate_local_detailed_balance_implies() {
+    let v = crate::common::run_json(&["check", "problems/walker.toml", "--json"]);
+    let bind = v["transitions"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|t| t["label"] == "bind")
+        .unwrap();
+    let kt_pn_nm: f64 = 1.380649e-23 * 298.15 / 1e-21;
+    let expected = 1000.0 * (-(0.0 - (-10.0) + 60.0) / kt_pn_nm).exp();
+    let reported = bind["backward"].as_f64().unwrap();
+    assert!(
+        (reported - expected).abs() <= 1e-14 * expected,
+        "{reported} vs {expected}"
+    );
+    assert_eq!(bind["implied"], "backward");
+    assert_eq!(v["cycles"].as_array().unwrap().len(), 2);
+}

@@ -34,7 +34,7 @@ LABELS = {
     "from", "to", "label", "state", "cycle", "title", "file", "kind", "name", "parameter_unit",
     "regime", "predicted_regime", "route", "design", "pathways", "carried_over",
     "upper_bound_missing", "failure", "family", "method", "refused", "task", "their_outcome",
-    "basis",
+    "basis", "implied",
 }
 # Columns of values that are set (grids, caps, levels), never computed by a solver.
 SET_VALUES = {
@@ -136,6 +136,7 @@ def run(*args, cwd=ROOT):
 
 WALKER = "problems/walker.toml"
 COMMANDS = [
+    (["check", "problems/flicker.toml"], ["states", "transitions", "cycles"]),
     (["steady", WALKER], ["transitions", "states", "cycles"]),
     (["bound", WALKER, "--rate-cap", "1000"], ["summary", "states", "pathways", "speed"]),
     (["sensitivity", WALKER], ["parameters"]),

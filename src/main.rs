@@ -201,6 +201,7 @@ enum Command {
     #[command(
         after_help = "Examples:\n  ergopath simulate problems/walker.toml --time 100 --runs 2000 --seed 1\n  ergopath simulate problems/walker.toml --design results/walker/design.json --time 100 --runs 2000 --seed 1 --save"
     )]
+    #[command(mut_arg("csv", |a| a.help("Print a table as CSV: estimates (one row: the simulated mean power and work diffusion with their intervals and exact values)")))]
     Simulate {
         /// Model file (TOML)
         model: PathBuf,
@@ -219,9 +220,8 @@ enum Command {
         /// No progress bar
         #[arg(long, short)]
         quiet: bool,
-        /// Print one JSON object (every key: `ergopath reference`, or docs/model-format.md)
-        #[arg(long)]
-        json: bool,
+        #[command(flatten)]
+        format: FormatFlags,
         /// Also write the report and a chart of the accumulated work of the first runs to results/<model name>/
         #[arg(long)]
         save: bool,
@@ -702,7 +702,7 @@ fn main() -> ExitCode {
             runs,
             seed,
             quiet,
-            json,
+            format,
             save,
         } => commands::simulate(
             model,
@@ -712,7 +712,7 @@ fn main() -> ExitCode {
                 runs: *runs,
                 seed: *seed,
                 quiet: *quiet,
-                format: if *json { Format::Json } else { Format::Text },
+                format: format.format(),
                 save_root: save.then(|| PathBuf::from("results")),
                 control: Default::default(),
             },

@@ -86,7 +86,7 @@ pub enum Format {
 /// pathways, ranking, precision; `sweep`: budgets (its `--save` also writes the frontier
 /// table as `frontier-<over>.csv`); `regimes`: scales; `sensitivity`: parameters; `compare`: ranking; `uncertainty`: samples,
 /// quantiles. The first of each command is what `--csv` alone prints.
-pub const CSV_TABLES: [&str; 13] = [
+pub const CSV_TABLES: [&str; 14] = [
     "transitions",
     "states",
     "cycles",
@@ -100,6 +100,7 @@ pub const CSV_TABLES: [&str; 13] = [
     "parameters",
     "samples",
     "quantiles",
+    "estimates",
 ];
 
 /// `ergopath check`: validate and summarise.

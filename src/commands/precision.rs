@@ -215,7 +215,7 @@ pub fn simulate_on(model: &Model, request: &SimulateRequest) -> Result<String, E
     let rendered = Rendered {
         text: report.text(),
         json: to_json(&report)?,
-        tables: Vec::new(),
+        tables: vec![("estimates", report.csv())],
         svg: report.svg(),
     };
     emit(

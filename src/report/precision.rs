@@ -170,6 +170,41 @@ pub struct SimulatedFigure {
 }
 
 impl SimulateReport {
+    /// The estimates as one CSV row: runs, run length, jumps, then for the mean power and for
+    /// the work diffusion the estimate, its interval, the exact value and whether it lies inside.
+    pub fn csv(&self) -> String {
+        use super::csv::{with_unit, Csv};
+        let (p, t) = (&self.units.power, self.units.time);
+        let d = format!("{}^2/{t}", self.units.energy);
+        let figure = |name: &str, unit: &str| {
+            [
+                with_unit(name, unit),
+                with_unit(&format!("{name}_low"), unit),
+                with_unit(&format!("{name}_high"), unit),
+                with_unit(&format!("{name}_exact"), unit),
+                format!("{name}_inside"),
+            ]
+        };
+        let mut header = vec!["runs".to_string(), with_unit("time", t), "jumps".into()];
+        header.extend(figure("power", p));
+        header.extend(figure("diffusion", &d));
+        let mut table = Csv::new(&header);
+        let cells = |f: &SimulatedFigure| {
+            [
+                f.estimate.into(),
+                f.low.into(),
+                f.high.into(),
+                f.exact.into(),
+                f.inside.into(),
+            ]
+        };
+        let mut row = vec![self.runs.into(), self.time.into(), self.jumps.into()];
+        row.extend(cells(&self.power));
+        row.extend(cells(&self.diffusion));
+        table.row(row);
+        table.finish()
+    }
+
     #[allow(clippy::too_many_arguments)]
     pub fn new(
         model: &Model,

@@ -27,14 +27,14 @@ DIMENSIONLESS = {
     "capped_fraction_of_headroom", "target_fraction", "relative_gap", "relative_residual",
     "shift", "scale", "near_equilibrium_error", "strong_drive_error", "uncertainty_product",
     "uncertainty_product_roundoff", "power_elasticity", "bound_elasticity", "quantile",
-    "max_pathways", "ratio",
+    "max_pathways", "ratio", "runs", "jumps",
 }
 # Columns of text: names, labels, verdicts, reasons.
 LABELS = {
     "from", "to", "label", "state", "cycle", "title", "file", "kind", "name", "parameter_unit",
     "regime", "predicted_regime", "route", "design", "pathways", "carried_over",
     "upper_bound_missing", "failure", "family", "method", "refused", "task", "their_outcome",
-    "basis", "implied",
+    "basis", "implied", "power_inside", "diffusion_inside",
 }
 # Columns of values that are set (grids, caps, levels), never computed by a solver.
 SET_VALUES = {
@@ -148,6 +148,7 @@ COMMANDS = [
     (["compare", WALKER, "problems/ring6.toml", "--rate-cap", "10", "--max-pathways", "1",
       "--quiet"], ["ranking"]),
     (["uncertainty", WALKER, "--samples", "20", "--quiet"], ["samples", "quantiles"]),
+    (["simulate", WALKER, "--time", "5", "--runs", "50", "--quiet"], ["estimates"]),
 ]
 
 

@@ -6,7 +6,9 @@
 //! Owns the invariants a fuzz run checks (they panic on a violation, which is what a fuzzer
 //! reports); it must not be called by the CLI or by any stage.
 
-use crate::commands::{self, BudgetFlags, DesignRequest, Format, SearchKnobs, SweepRequest};
+use crate::commands::{
+    self, BudgetFlags, DesignRequest, Format, SearchKnobs, SweepRequest, UncertaintyRequest,
+};
 use crate::model::Model;
 use crate::steady::{self, SteadySettings};
 use std::path::{Path, PathBuf};
@@ -68,8 +70,8 @@ fn scratch_file(dir: &Path) -> PathBuf {
 }
 
 /// Any bytes as a part file given to `merge` beside `second_part` (the other shard of a valid
-/// search of `model`), and as a checkpoint of `design --resume` and `sweep --resume` on
-/// `model`: refused with a message or accepted, never a panic. The bytes are written to a
+/// search of `model`), and as a checkpoint of `design --resume`, `sweep --resume` and
+/// `uncertainty --resume` on `model`: refused with a message or accepted, never a panic. The bytes are written to a
 /// fresh file in `dir`, removed afterwards.
 pub fn file_bytes(data: &[u8], model: &Path, second_part: &Path, dir: &Path) {
     let data = &sealed(data)[..];
@@ -102,7 +104,7 @@ pub fn file_bytes(data: &[u8], model: &Path, second_part: &Path, dir: &Path) {
     let _ = commands::design(model, &design);
     if std::fs::write(&file, data).is_ok() {
         let sweep = SweepRequest {
-            knobs,
+            knobs: knobs.clone(),
             over: "rate-cap=1..1e4".into(),
             points: 5,
             checkpoint: Some(file.clone()),
@@ -111,6 +113,18 @@ pub fn file_bytes(data: &[u8], model: &Path, second_part: &Path, dir: &Path) {
             ..Default::default()
         };
         let _ = commands::sweep(model, &sweep);
+    }
+    if std::fs::write(&file, data).is_ok() {
+        let uncertainty = UncertaintyRequest {
+            samples: 20,
+            seed: 2,
+            knobs,
+            checkpoint: Some(file.clone()),
+            resume: true,
+            stop_after: Some(0),
+            ..Default::default()
+        };
+        let _ = commands::uncertainty(model, &uncertainty);
     }
     let _ = std::fs::remove_file(&file);
 }

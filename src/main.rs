@@ -128,6 +128,15 @@ enum Command {
         /// No progress bar
         #[arg(long, short)]
         quiet: bool,
+        /// Keep solved samples in FILE, so that an interrupted run can be resumed
+        #[arg(long, value_name = "FILE")]
+        checkpoint: Option<PathBuf>,
+        /// Continue an interrupted run from its --checkpoint FILE (--samples may grow)
+        #[arg(long, requires = "checkpoint")]
+        resume: bool,
+        /// Testing aid: stop as if interrupted after N newly solved samples
+        #[arg(long, hide = true)]
+        stop_after_samples: Option<usize>,
         #[command(flatten)]
         format: FormatFlags,
         #[command(flatten)]
@@ -566,6 +575,9 @@ fn main() -> ExitCode {
             pairs,
             threads,
             quiet,
+            checkpoint,
+            resume,
+            stop_after_samples,
             format,
             save,
         } => commands::uncertainty(
@@ -581,6 +593,9 @@ fn main() -> ExitCode {
                 },
                 format: format.format(),
                 save_root: save.root(),
+                checkpoint: checkpoint.clone(),
+                resume: *resume,
+                stop_after: *stop_after_samples,
             },
         ),
         Command::Draw {

@@ -567,6 +567,7 @@ fn dispatch(
                 knobs,
                 format,
                 save_root: save,
+                ..Default::default()
             },
         ),
         "simulate" => in_threads(&|| {

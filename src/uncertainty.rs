@@ -20,8 +20,9 @@ pub const LEVELS: [f64; 5] = [0.05, 0.25, 0.5, 0.75, 0.95];
 /// Most samples accepted in one run.
 pub const MAX_SAMPLES: usize = 1_000_000;
 
-/// What one sample gave (kT per time unit).
-#[derive(Debug, Clone, Copy, PartialEq)]
+/// What one sample gave (kT per time unit). Its serde form is the entry of a checkpoint.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(tag = "status", rename_all = "snake_case")]
 pub enum SampleOutcome {
     Solved {
         baseline_power: f64,
@@ -52,24 +53,52 @@ pub fn solve_sample(model: &Model, pairs: &PairSelection, seed: u64, index: u64)
     }
 }
 
-/// Solves samples `0..count` in parallel (rayon's current pool), reporting each to `observer`
-/// and stopping early when `control` asks (then `None`).
+/// Where samples solved by an earlier run come from and where new ones go: a checkpoint file
+/// for the command line; a [`Control`] keeps nothing and only passes on a stop request.
+pub trait SampleKeeper: Sync {
+    /// The outcome of sample `index`, if an earlier run solved it.
+    fn kept(&self, _index: u64) -> Option<SampleOutcome> {
+        None
+    }
+
+    /// Keeps a newly solved sample.
+    fn record(&self, _index: u64, _outcome: SampleOutcome) {}
+
+    /// Whether to stop before solving another sample.
+    fn should_stop(&self) -> bool;
+}
+
+impl SampleKeeper for Control {
+    fn should_stop(&self) -> bool {
+        self.stop_requested()
+    }
+}
+
+/// Solves samples `0..count` in parallel (rayon's current pool), taking those `keeper` kept
+/// from an earlier run, giving it each new one, reporting each to `observer`, and stopping
+/// early when `keeper` asks (then `None`). A sample's outcome depends only on `seed` and its
+/// index, so a kept sample is the one a fresh solve would give.
 pub fn solve_samples(
     model: &Model,
     pairs: &PairSelection,
     seed: u64,
     count: usize,
     observer: &dyn Observer,
-    control: &Control,
+    keeper: &dyn SampleKeeper,
 ) -> Option<Vec<SampleOutcome>> {
     observer.start(count as u64, "samples");
     let outcomes: Vec<Option<SampleOutcome>> = (0..count as u64)
         .into_par_iter()
         .map(|i| {
-            if control.stop_requested() {
-                return None;
-            }
-            let outcome = solve_sample(model, pairs, seed, i);
+            let outcome = match keeper.kept(i) {
+                Some(kept) => kept,
+                None if keeper.should_stop() => return None,
+                None => {
+                    let fresh = solve_sample(model, pairs, seed, i);
+                    keeper.record(i, fresh);
+                    fresh
+                }
+            };
             let power = match outcome {
                 SampleOutcome::Solved { bound, .. } => bound,
                 _ => f64::NAN,

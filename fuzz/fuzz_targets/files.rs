@@ -1,6 +1,7 @@
 //! Fuzz target for part files and checkpoints: any bytes given to `merge` as a part file (beside
 //! `fuzz/part-1-of-2.json`, the other shard of the seed `seeds-files/part-0-of-2.json`), or to
-//! `design --resume` and `sweep --resume` as a checkpoint (on the shipped walker model), are
+//! `design --resume`, `sweep --resume` and `uncertainty --resume` as a checkpoint (on the
+//! shipped walker model), are
 //! refused with a message or accepted, never a panic. The body is
 //! `ergopath::fuzzing::file_bytes`, which `tests/all/fuzzing.rs` also runs on stable.
 //!
@@ -11,7 +12,9 @@
 //! `ergopath design problems/walker.toml --max-pathways 2 --top 4 -q --checkpoint
 //! fuzz/seeds-files/design-checkpoint.json --stop-after-branches=2` and `ergopath sweep
 //! problems/walker.toml --over rate-cap=1..1e4 --points 5 -q --checkpoint
-//! fuzz/seeds-files/sweep-checkpoint.json --stop-after-points=2`.
+//! fuzz/seeds-files/sweep-checkpoint.json --stop-after-points=2` and `ergopath uncertainty
+//! problems/walker.toml --samples 20 --seed 2 -q --checkpoint
+//! fuzz/seeds-files/uncertainty-checkpoint.json --stop-after-samples=8`.
 #![no_main]
 
 use libfuzzer_sys::fuzz_target;

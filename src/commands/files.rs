@@ -11,6 +11,8 @@ use crate::search::{self, BranchResult, Found, Part, SearchSettings, Strategy};
 pub const PART_FORMAT: &str = "ergopath-design-part/1";
 /// Version tag of a checkpoint of `design --checkpoint`.
 pub const CHECKPOINT_FORMAT: &str = "ergopath-design-checkpoint/1";
+/// Version tag of a checkpoint of `uncertainty --checkpoint`.
+pub const UNCERTAINTY_CHECKPOINT_FORMAT: &str = "ergopath-uncertainty-checkpoint/1";
 /// Version tag of a checkpoint of `sweep --checkpoint`.
 pub const SWEEP_CHECKPOINT_FORMAT: &str = "ergopath-sweep-checkpoint/1";
 

@@ -63,8 +63,19 @@ struct FileKeeper {
 /// Set by the Ctrl-C handler.
 static INTERRUPTED: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
 
+/// Makes the first Ctrl-C ask a run with a checkpoint to stop after the work in flight; a
+/// handler can be set only once per process, which is all a command needs.
+pub(super) fn stop_on_ctrl_c() {
+    let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
+}
+
+/// Whether Ctrl-C was pressed since [`stop_on_ctrl_c`].
+pub(super) fn ctrl_c_pressed() -> bool {
+    INTERRUPTED.load(std::sync::atomic::Ordering::SeqCst)
+}
+
 /// The guarded value even if a thread panicked while holding the lock.
-fn locked<T>(mutex: &std::sync::Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+pub(super) fn locked<T>(mutex: &std::sync::Mutex<T>) -> std::sync::MutexGuard<'_, T> {
     mutex
         .lock()
         .unwrap_or_else(std::sync::PoisonError::into_inner)
@@ -104,9 +115,7 @@ impl FileKeeper {
         }
         write_atomic(path, files::sealed_json(&file)?.as_bytes())?;
         let on_disk = std::sync::atomic::AtomicUsize::new(file.finished.len());
-        // The first Ctrl-C asks the search to stop after the branches in flight; a handler
-        // can be set only once per process, which is all a command needs.
-        let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
+        stop_on_ctrl_c();
         Ok(Self {
             path: path.to_path_buf(),
             file: std::sync::Mutex::new(file),
@@ -151,7 +160,7 @@ impl search::Keeper for FileKeeper {
 
     fn should_stop(&self) -> bool {
         use std::sync::atomic::Ordering;
-        INTERRUPTED.load(Ordering::SeqCst)
+        ctrl_c_pressed()
             || locked(&self.failure).is_some()
             || self
                 .stop_after
@@ -161,7 +170,7 @@ impl search::Keeper for FileKeeper {
 
 /// [`check_checkpoint_path`] for an optional `--checkpoint` of a run that may `--save` the
 /// model's report under `save_root`.
-fn check_checkpoint_for(
+pub(super) fn check_checkpoint_for(
     checkpoint: Option<&Path>,
     model_path: &Path,
     model: &Model,
@@ -492,7 +501,10 @@ fn searcher_for<'a>(
 }
 
 /// Reads a checkpoint written by `command --checkpoint`, for `--resume`.
-fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -> Result<T, Error> {
+pub(super) fn read_checkpoint<T: serde::de::DeserializeOwned>(
+    path: &Path,
+    command: &str,
+) -> Result<T, Error> {
     let text = files::read_untrusted(path).map_err(|e| {
         Error::Usage(format!(
             "--resume: cannot read the checkpoint {} ({e}); run without --resume to start afresh",
@@ -510,7 +522,7 @@ fn read_checkpoint<T: serde::de::DeserializeOwned>(path: &Path, command: &str) -
 }
 
 /// The refusal of a checkpoint whose content does not hold up.
-fn damaged_checkpoint(path: &Path, why: &str) -> Error {
+pub(super) fn damaged_checkpoint(path: &Path, why: &str) -> Error {
     Error::Usage(format!(
         "--resume: {} is damaged or was edited: {why}; start afresh without --resume",
         path.display()
@@ -518,7 +530,7 @@ fn damaged_checkpoint(path: &Path, why: &str) -> Error {
 }
 
 /// The refusal of a checkpoint that belongs to another search.
-fn foreign_checkpoint(path: &Path) -> Error {
+pub(super) fn foreign_checkpoint(path: &Path) -> Error {
     Error::Usage(format!(
         "--resume: {} belongs to another model or other search settings; give the same model and flags, or start afresh without --resume",
         path.display()
@@ -1226,7 +1238,7 @@ pub fn sweep_on(
             .map_err(|why| damaged_checkpoint(file, &why))?;
         // Written at once, so that a checkpoint that cannot be written fails before any work.
         write_sweep_checkpoint(file, &identity, &done, done.len())?;
-        let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, std::sync::atomic::Ordering::SeqCst));
+        stop_on_ctrl_c();
     }
     let bar = knobs.observer(model);
     bar.start(values.len() as u64, "budget points");
@@ -1242,8 +1254,7 @@ pub fn sweep_on(
             continue;
         }
         if let Some(file) = &request.checkpoint {
-            let stop = INTERRUPTED.load(std::sync::atomic::Ordering::SeqCst)
-                || request.stop_after.is_some_and(|n| new_points >= n);
+            let stop = ctrl_c_pressed() || request.stop_after.is_some_and(|n| new_points >= n);
             if stop {
                 bar.finish();
                 return Err(Error::Interrupted(format!(

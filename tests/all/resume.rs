@@ -1,6 +1,7 @@
-//! Interruption and resumption of long runs: a `design` or `sweep` stopped part way (as by
-//! Ctrl-C) keeps its finished work in the checkpoint file and exits with status 130; `--resume`
-//! then ends with exactly the output of an uninterrupted run.
+//! Interruption and resumption of long runs: a `design`, `sweep` or `uncertainty` stopped part
+//! way (as by Ctrl-C) keeps its finished work in the checkpoint file and exits with status 130;
+//! `--resume` then ends with exactly the output of an uninterrupted run (for `uncertainty` also
+//! on more samples than the stopped run had), and an edited checkpoint is refused.
 
 use crate::common::{root, run, scratch};
 
@@ -101,4 +102,89 @@ fn interrupted_sweep_resumes_to_the_same_table() {
         "2 of 5 budget points finished",
     );
     assert_eq!(kept["done"].as_array().unwrap().len(), 2);
+}
+
+#[test]
+fn interrupted_uncertainty_resumes_to_the_same_quantiles() {
+    let model = root().join("problems/walker.toml");
+    let model = model.to_str().unwrap();
+    let run_of = |samples: &str| {
+        [
+            "uncertainty",
+            model,
+            "--samples",
+            samples,
+            "--seed",
+            "3",
+            "--json",
+            "-q",
+        ]
+        .map(String::from)
+    };
+    let args = run_of("400");
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let other = ["uncertainty", model, "--samples", "400", "--seed", "4"];
+    let kept = stop_and_resume(
+        "resume-uncertainty",
+        &args,
+        &other,
+        "--stop-after-samples=50",
+        "samples solved and kept",
+    );
+    // Samples in flight when the stop came are kept too: at most one per thread beyond 50.
+    let solved = kept["solved"].as_array().unwrap().len();
+    assert!((50..=50 + 64).contains(&solved), "{solved} samples kept");
+
+    // The finished checkpoint holds all 400 samples; a run of 600 continues it and equals a
+    // whole run of 600 (sample i depends only on the seed and i).
+    let dir = crate::common::scratch("resume-uncertainty-grow");
+    let checkpoint = dir.join("checkpoint.json");
+    let checkpoint = checkpoint.to_str().unwrap();
+    let with_file = |extra: &[&str], samples: &str| {
+        let base = run_of(samples);
+        let base: Vec<&str> = base.iter().map(String::as_str).collect();
+        run(&[&base[..], &["--checkpoint", checkpoint], extra].concat())
+    };
+    assert!(with_file(&[], "400").status.success());
+    let grown = with_file(&["--resume"], "600");
+    let whole = run(&run_of("600").each_ref().map(String::as_str));
+    assert!(grown.status.success());
+    assert_eq!(grown.stdout, whole.stdout);
+    let text = std::fs::read_to_string(checkpoint).unwrap();
+    let file: serde_json::Value = serde_json::from_str(&text).unwrap();
+    assert_eq!(file["solved"].as_array().unwrap().len(), 600);
+
+    // A kept value edited (and the digest recomputed, as a deliberate edit would) is caught
+    // by re-solving: the first solved sample is always among those re-solved.
+    let mut edited = file.clone();
+    let first = edited["solved"]
+        .as_array_mut()
+        .unwrap()
+        .iter_mut()
+        .find(|s| s["status"] == "solved")
+        .unwrap();
+    let bound = first["bound"].as_f64().unwrap();
+    let headroom = first["headroom"].as_f64().unwrap();
+    first["bound"] = serde_json::json!(bound * 1.01);
+    first["headroom"] = serde_json::json!(headroom + bound * 0.01);
+    let index = first["index"].as_u64().unwrap();
+    let mut content = edited;
+    content.as_object_mut().unwrap().remove("digest");
+    ergopath::commands::files::seal(&mut content).unwrap();
+    std::fs::write(checkpoint, content.to_string()).unwrap();
+    let refused = with_file(&["--resume"], "600");
+    let err = String::from_utf8_lossy(&refused.stderr);
+    assert_eq!(refused.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains(&format!("its sample {index} states")) && err.contains("solving it again"),
+        "{err}"
+    );
+    assert!(refused.stdout.is_empty());
+
+    // A damaged file (digest no longer matching) is refused before any work.
+    std::fs::write(checkpoint, text.replacen("\"seed\": 3", "\"seed\": 5", 1)).unwrap();
+    let damaged = with_file(&["--resume"], "600");
+    let err = String::from_utf8_lossy(&damaged.stderr);
+    assert_eq!(damaged.status.code(), Some(2), "{err}");
+    assert!(err.contains("integrity digest"), "{err}");
 }

@@ -984,6 +984,10 @@ fn fuzz_seeds_are_valid_files_of_this_version() {
             "sweep-checkpoint.json",
             vec!["sweep", "--over", "rate-cap=1..1e4", "--points", "5"],
         ),
+        (
+            "uncertainty-checkpoint.json",
+            vec!["uncertainty", "--samples", "20", "--seed", "2"],
+        ),
     ] {
         std::fs::copy(fuzz.join("seeds-files").join(name), dir.join(name)).unwrap();
         let model = walker();
@@ -1115,4 +1119,36 @@ fn interrupted_sweep(dir: &Path) -> PathBuf {
     let out = run_in(dir, &args);
     assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
     dir.join("sweep.json")
+}
+
+#[test]
+fn every_number_of_an_uncertainty_checkpoint_mutated_never_panics() {
+    use ergopath::commands::{uncertainty, SearchKnobs, UncertaintyRequest};
+    let dir = scratch("safe-mutated-uncertainty");
+    let original = dir.join("original.json");
+    std::fs::copy(
+        root().join("fuzz/seeds-files/uncertainty-checkpoint.json"),
+        &original,
+    )
+    .unwrap();
+    let model = PathBuf::from(walker());
+    mutate_every_number(&original, &|tampered| {
+        let request = UncertaintyRequest {
+            samples: 20,
+            seed: 2,
+            knobs: SearchKnobs {
+                quiet: true,
+                threads: 1,
+                ..Default::default()
+            },
+            checkpoint: Some(tampered.to_path_buf()),
+            resume: true,
+            stop_after: Some(0),
+            ..Default::default()
+        };
+        !matches!(
+            uncertainty(&model, &request),
+            Err(ergopath::Error::Usage(_))
+        )
+    });
 }

@@ -939,6 +939,132 @@ def design_fixtures():
         print(f"tests/fixtures/designs/{path.stem}.json: {len(cases)} designs at 50 digits")
 
 
+SENSITIVITY = ROOT / "tests" / "fixtures" / "sensitivity"
+# Central-difference step (in each parameter's own unit). At 50 digits with the bound bracketed
+# to 1e-30 and below, the difference quotient's noise is bracket / h (about 1e-18 relative) and
+# its truncation h^2 / 6 times the third derivative (about 1e-24): both far below double
+# precision.
+SENSITIVITY_STEP = mp.mpf("1e-12")
+
+
+def perturbed_network(model, kind, index, h, temperature):
+    """The network with one parameter moved by `h` in the model's own unit (methods, section
+    10, written here from that description): `ln k` of a channel (both rates scaled), a state
+    energy, a work label or a drive (forward rate kept, backward rate from LDB), or the
+    temperature (energies, labels and drives fixed in their unit, so their value in kT scales
+    as T0 / (T0 + h); the unit's size in kT with them)."""
+    to_kt = model["to_kt"]
+    energy = list(model["energy"])
+    channels = [list(c) for c in model["channels"]]
+    if kind == "rate":
+        channels[index][2] *= mp.exp(h)
+        channels[index][3] *= mp.exp(h)
+        return dict(model, channels=[tuple(c) for c in channels])
+    if kind == "energy":
+        energy[index] += h * to_kt
+    elif kind == "work":
+        channels[index][4] += h * to_kt
+    elif kind == "drive":
+        channels[index][5] += h * to_kt
+    elif kind == "temperature":
+        factor = temperature / (temperature + h)
+        energy = [e * factor for e in energy]
+        for c in channels:
+            c[4] *= factor
+            c[5] *= factor
+        to_kt = to_kt * factor
+    for c in channels:
+        a, b, kf, work, drive = c[0], c[1], c[2], c[4], c[5]
+        c[3] = kf * mp.exp(-(energy[a] - energy[b] - work + drive))
+    return dict(model, energy=energy, channels=[tuple(c) for c in channels], to_kt=to_kt)
+
+
+def model_unit_powers(model, groups, design):
+    """Baseline power, bound (its lower end and its bracket width) and, with `design` (pathways
+    as (a, b, forward, backward), rates held fixed), the design's power; all in the model's
+    power unit."""
+    _, power, _, _ = observables(model, steady_mp(model))
+    bound = bound_mp(model, groups)
+    out = {
+        "power": power / model["to_kt"],
+        "bound": bound["value"] / model["to_kt"],
+        "bound_bracket": (bound["upper"] - bound["value"] + bound["roundoff"]) / model["to_kt"],
+    }
+    if design is not None:
+        out["design"] = design_power_mp(model, design) / model["to_kt"]
+    return out
+
+
+def sensitivity_cases():
+    """(fixture name, model path, design file or None)."""
+    cases = []
+    for path in sorted((ROOT / "problems").glob("*.toml")):
+        design = ROOT / "results" / path.stem / "design.json"
+        cases.append((path.stem, path, design if design.exists() else None))
+    for stem in ("energy-span", "photon-ring", "pump-switching-slow", "slow-environment"):
+        cases.append((f"stiff-{stem}", STIFF / f"{stem}.toml", None))
+    return cases
+
+
+def sensitivity_parameters(model, data):
+    """The parameters in the tool's order: rates, energies, work labels, drives, temperature."""
+    c, n = len(model["channels"]), len(model["names"])
+    parameters = ([("rate", i) for i in range(c)] + [("energy", i) for i in range(n)]
+                  + [("work", i) for i in range(c)] + [("drive", i) for i in range(c)])
+    if data.get("energy_unit", "kT") != "kT":
+        parameters.append(("temperature", 0))
+    return parameters
+
+
+def sensitivity_fixtures():
+    """Writes tests/fixtures/sensitivity/<case>.json: the derivative of the baseline power, of
+    the bound (over all pairs, within each environment state) and of the rank-1 saved design's
+    power with respect to every parameter, by central differences of the 50-digit steady
+    state, bound and design power, each with its error estimate (the bracket's noise plus the
+    difference to the quotient at step 2h)."""
+    SENSITIVITY.mkdir(parents=True, exist_ok=True)
+    h = SENSITIVITY_STEP
+    for name, path, design_file in sensitivity_cases():
+        model = load_model(path)
+        data = tomllib.loads(path.read_text())
+        temperature = mp.mpf(data.get("temperature", 298.15))
+        groups = pair_groups(path, model, "all")
+        index = {n: i for i, n in enumerate(model["names"])}
+        design = None
+        if design_file is not None:
+            rank1 = json.loads(design_file.read_text())["designs"][0]
+            design = [(index[w["from"]], index[w["to"]], w["forward"], w["backward"])
+                      for w in rank1["pathways"]]
+        entries = []
+        for kind, i in sensitivity_parameters(model, data):
+            def at(step):
+                return model_unit_powers(perturbed_network(model, kind, i, step, temperature),
+                                         groups, design)
+            up, down, up2, down2 = at(h), at(-h), at(2 * h), at(-2 * h)
+            entry = {"kind": kind, "index": i}
+            for key in ("power", "bound", "design"):
+                if key not in up:
+                    continue
+                d = (up[key] - down[key]) / (2 * h)
+                d2 = (up2[key] - down2[key]) / (4 * h)
+                scale = max(abs(up[key]), abs(down[key]))
+                noise = ((up["bound_bracket"] + down["bound_bracket"]) / (2 * h)
+                         if key == "bound" else mp.mpf(10) ** -45 * scale / h)
+                entry[f"d_{key}"] = mp_digits(d)
+                entry[f"d_{key}_error"] = float(abs(d - d2) + noise)
+            entries.append(entry)
+        fixture = {
+            "model": str(path.relative_to(ROOT)),
+            "design": (str(design_file.relative_to(ROOT)) + " rank 1") if design_file else None,
+            "step": float(h),
+            "parameters": entries,
+        }
+        (SENSITIVITY / f"{name}.json").write_text(json.dumps(fixture, indent=1) + "\n")
+        worst = max(e["d_bound_error"] for e in entries)
+        print(f"tests/fixtures/sensitivity/{name}.json: {len(entries)} parameters at 50 digits "
+              f"(largest bound-derivative error estimate {worst:.1e})")
+
+
 def main():
     MODELS.mkdir(parents=True, exist_ok=True)
     OUT.mkdir(parents=True, exist_ok=True)
@@ -958,6 +1084,7 @@ def main():
     precision_fixtures(paths)
     bound_mp_fixtures(cvxpy_values)
     design_fixtures()
+    sensitivity_fixtures()
     return 0
 
 

@@ -5,16 +5,19 @@
 //!
 //! The bound's derivative follows the envelope theorem: the bound is the maximum over `p` of
 //! `Phi(p; theta)`, so `dPhi*/dtheta = dPhi/dtheta` at the certified optimum `p*` held fixed
-//! (no re-optimisation). The power's derivative differentiates the steady state. Both are
-//! central differences with a Richardson step (`h` and `h/2`), whose difference is the stated
-//! error estimate; a derivative whose estimate exceeds 1% of it is reported as such by the
-//! report. Also the derivatives of a given design's power, its added rates held fixed
-//! ([`design_power`]). Owns the perturbation of a network by one parameter; it must not print
-//! or read files.
+//! (no re-optimisation); over restricted pairs the routability multipliers enter
+//! ([`routability_lift`]). The power's derivative is the adjoint of the steady state: one
+//! transposed solve gives every parameter's. Each derivative carries a stated error (the
+//! certificate's gap for the bound, the adjoint's refinement step for the power). Also the
+//! derivatives of a given design's power, its added rates held fixed ([`design_power`]). Owns
+//! the perturbation of a network by one parameter ([`perturbed`]); it must not print or read
+//! files. Derivatives are per kT; the report converts them to the model's units.
 
 use crate::bound::design::Pathway;
+use crate::bound::newton::fitted_multipliers;
+use crate::bound::objective::Objective;
 use crate::bound::Bound;
-use crate::model::{Channel, Model, Network};
+use crate::model::{Channel, Model, Network, PairSelection};
 use crate::steady::{self, SolveError, SteadySettings};
 
 /// Kind of a model parameter.
@@ -40,7 +43,8 @@ pub struct Parameter {
     pub index: usize,
 }
 
-/// A derivative and its error estimate (the Richardson difference).
+/// A derivative and its stated error bound (the certificate's gap for the bound, the adjoint's
+/// refinement step for the power).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Derivative {
     pub value: f64,
@@ -422,19 +426,55 @@ fn solve_reduced(lu: &crate::linalg::SparseLu, reference: usize, rhs: &[f64]) ->
     steady::on_reduced(reference, rhs, |x| lu.solve_in_place(x))
 }
 
+/// The routability multiplier of each state's group (zero without restricted pairs, and for
+/// the last group, whose row the others imply). With added pathways confined to groups (each
+/// environment state, or `--pairs`), the bound is `max Phi(p)` subject to `A(theta) p = 0`
+/// (no net flux into a group through the baseline), so by the envelope theorem its derivative
+/// is that of the Lagrangian `Phi + mu . A p` at the optimum: every channel crossing from group
+/// `a` to group `b` weighs its flux change by `mu_b - mu_a` besides its `Phi` weight (methods,
+/// section 10). `mu` is the certificate's levellest fit of `g + A^T mu = const`.
+fn routability_lift(
+    network: &Network,
+    bound: &Bound,
+    pairs: &PairSelection,
+) -> Result<Vec<f64>, SolveError> {
+    let objective = Objective::new(network);
+    let constraints = crate::bound::routability(&objective, pairs);
+    if constraints.rows.is_empty() {
+        return Ok(vec![0.0; network.len()]);
+    }
+    let g = objective.gradient(&bound.log_p);
+    let mu = fitted_multipliers(&constraints, &g).ok_or_else(|| {
+        SolveError::NotDetermined(format!(
+            "the bound's sensitivities need the multipliers of its {} routability rows, which could not be fitted (more than 64 groups of allowed pairs, or not finite); fix: allow pathways between more pairs so that fewer groups remain",
+            constraints.rows.len()
+        ))
+    })?;
+    Ok(constraints
+        .group_of
+        .iter()
+        .map(|&g| mu.get(g).copied().unwrap_or(0.0))
+        .collect())
+}
+
 /// Every parameter's derivatives of the baseline power (adjoint of the steady state: one
 /// transposed solve for all parameters) and of the certified bound `bound` (envelope theorem:
 /// the explicit derivative of `Phi` at `p*`, one pass over the channels per parameter).
 /// Errors: the adjoint's refinement correction carried through, and for the bound the
 /// first-order effect of `p*` being optimal only to the certified gap (`sqrt(gap)` relative to
 /// the terms), each plus round-off of the sums.
-pub fn analyse(model: &Model, bound: &Bound) -> Result<Vec<Sensitivity>, SolveError> {
+pub fn analyse(
+    model: &Model,
+    bound: &Bound,
+    pairs: &PairSelection,
+) -> Result<Vec<Sensitivity>, SolveError> {
     let network = &model.network;
     let t = model.units.temperature;
     let all = parameters(model);
     let (powers, errors) = power_sums(network, &all, t)?;
     let (flux, backward_inflow) = fluxes_at(network, &bound.p);
     let log_p = &bound.log_p;
+    let lift = routability_lift(network, bound, pairs)?;
     let envelope = Linearised {
         network,
         flux,
@@ -446,6 +486,8 @@ pub fn analyse(model: &Model, bound: &Bound) -> Result<Vec<Sensitivity>, SolveEr
                 c.work + log_p[c.to] + network.energies[c.to]
                     - log_p[c.from]
                     - network.energies[c.from]
+                    + lift[c.to]
+                    - lift[c.from]
             })
             .collect(),
         work_explicit: 1.0,

@@ -217,7 +217,7 @@ const FITTED_ROWS_LIMIT: usize = 64;
 /// system whose rows hold rates of up to 1e6 beside probabilities of 1e-9 (measured: a gap of
 /// 4.6% that these multipliers close to 1e-7 on a 6-state network restricted to one pair).
 /// `None` without rows, with too many, or if the fit is not finite.
-fn fitted_multipliers(constraints: &Constraints, g: &[f64]) -> Option<Vec<f64>> {
+pub fn fitted_multipliers(constraints: &Constraints, g: &[f64]) -> Option<Vec<f64>> {
     let m = constraints.rows.len();
     if m == 0 || m > FITTED_ROWS_LIMIT {
         return None;

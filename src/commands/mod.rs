@@ -397,15 +397,17 @@ pub fn sensitivity_on(
     format: Format,
     save_root: Option<&Path>,
 ) -> Result<String, Error> {
+    let pairs = model.default_pairs();
     let bound = crate::bound::solve(
         &model.network,
-        &PairSelection::All,
+        &pairs,
         &crate::bound::BoundSettings::default(),
     )?;
-    let sensitivities = crate::sensitivity::analyse(model, &bound)?;
+    let sensitivities = crate::sensitivity::analyse(model, &bound, &pairs)?;
     let designed = match design {
         Some((name, pathways)) => Some((
             name.to_string(),
+            crate::bound::design::verify(&model.network, pathways)?.power,
             crate::sensitivity::design_power(model, pathways)?,
         )),
         None => None,
@@ -414,7 +416,9 @@ pub fn sensitivity_on(
         model,
         &bound,
         &sensitivities,
-        designed.as_ref().map(|(n, d)| (n.clone(), d.as_slice())),
+        designed
+            .as_ref()
+            .map(|(n, power, d)| (n.clone(), *power, d.as_slice())),
     );
     let rendered = Rendered {
         text: report.text(),
@@ -678,7 +682,7 @@ pub fn regimes(path: &Path, request: &RegimesRequest) -> Result<String, Error> {
 
 /// [`regimes`] on a model in memory.
 pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Error> {
-    use crate::bound::{self, closed_form, BoundSettings};
+    use crate::bound::{self, BoundSettings};
     use crate::report::regimes::{RegimePoint, RegimesReport};
     let which = scaling_of(&request.scale)?;
     let (from, to, points) = (request.from, request.to, request.points);
@@ -688,6 +692,9 @@ pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Err
         )));
     }
     let u = &model.units;
+    // The model's own pairs, as `bound` uses them: with a fluctuating environment, pathways
+    // act within each environment state (they may not use its drive).
+    let pairs = model.default_pairs();
     let mut rows = Vec::with_capacity(points);
     for scale in crate::numeric::log_spaced(from, to, points) {
         let net = match which {
@@ -707,17 +714,17 @@ pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Err
             predicted: None,
             near_equilibrium: None,
             strong_drive: None,
+            compared: pairs == PairSelection::All,
         };
         let Some(net) = net else {
             row.failure = Some("a backward rate leaves the floating-point range".into());
             rows.push(row);
             continue;
         };
-        match bound::solve(&net, &PairSelection::All, &BoundSettings::default()) {
+        match bound::solve(&net, &pairs, &BoundSettings::default()) {
             Err(e) => row.failure = Some(e.to_string()),
             Ok(b) => {
-                let forms =
-                    closed_form::assess(&net, &b.baseline, b.baseline_power).checked(b.headroom());
+                let forms = closed_forms_of(&net, &pairs, &b);
                 row.headroom = Some(u.from_kt(b.headroom()));
                 row.indicator = Some(forms.indicator);
                 row.shift = forms.shift;
@@ -733,6 +740,7 @@ pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Err
         title: model.title.clone(),
         units: crate::report::UnitsJson::of(model),
         scaled: request.scale.trim().to_string(),
+        pairs: crate::report::bound::describe_pairs(model, &pairs),
         points: rows,
     };
     let rendered = Rendered {

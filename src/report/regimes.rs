@@ -23,10 +23,17 @@ pub struct RegimePoint {
     pub predicted: Option<&'static str>,
     pub near_equilibrium: Option<f64>,
     pub strong_drive: Option<f64>,
+    /// Whether the closed forms estimate this headroom: they estimate the bound over all
+    /// pairs, so over restricted pairs (each environment state, or `[pathways]`) they are shown
+    /// without an error.
+    pub compared: bool,
 }
 
 impl RegimePoint {
     fn error(&self, estimate: Option<f64>) -> Option<f64> {
+        if !self.compared {
+            return None;
+        }
         let (exact, estimate) = (self.headroom?, estimate?);
         (exact != 0.0).then(|| (estimate - exact) / exact.abs())
     }
@@ -46,6 +53,8 @@ pub struct RegimesReport {
     pub units: UnitsJson,
     /// What was scaled (`work`, `drive`, `energies`, `stored`, or a comma list).
     pub scaled: String,
+    /// Where the added pathways may act (the model's own pairs).
+    pub pairs: String,
     pub points: Vec<RegimePoint>,
 }
 
@@ -53,9 +62,13 @@ impl RegimesReport {
     pub fn text(&self) -> String {
         let p = &self.units.power;
         let mut out = format!(
-            "Regimes of {} as the {} labels are scaled\n  headrooms in {p}; error = (estimate - exact) / exact\n\n",
-            self.title, self.scaled
+            "Regimes of {} as the {} labels are scaled\n  added pathways: {}\n  headrooms in {p}; error = (estimate - exact) / exact\n",
+            self.title, self.scaled, self.pairs
         );
+        if self.points.iter().any(|pt| !pt.compared) {
+            out.push_str("  the closed forms estimate the bound over all pairs, not this restricted one: no errors are given\n");
+        }
+        out.push('\n');
         let mut table = Table::new(&[
             ("scale", Align::Right),
             ("indicator", Align::Right),

@@ -71,7 +71,7 @@ impl SensitivityReport {
         model: &Model,
         bound: &Bound,
         sensitivities: &[Sensitivity],
-        design: Option<(String, &[Derivative])>,
+        design: Option<(String, f64, &[Derivative])>,
     ) -> Self {
         let u = &model.units;
         // Internal derivatives are per kT of energy-like parameters; per model energy unit a
@@ -97,10 +97,24 @@ impl SensitivityReport {
             .map(|(i, s)| {
                 let (kind, index) = (s.parameter.kind, s.parameter.index);
                 let k = per_unit(kind);
-                let convert = |d: &Derivative| (u.from_kt(d.value) * k, u.from_kt(d.error) * k);
-                let ((dp, ep), (db, eb)) = (convert(&s.d_power), convert(&s.d_bound));
+                // A power in the model's unit is `P_kT kT / unit`: at fixed energies in their
+                // unit, the temperature also moves the conversion, by `P / T` per kelvin.
+                let moved_unit = |value_kt: f64| match kind {
+                    ParameterKind::Temperature => value_kt / u.temperature,
+                    _ => 0.0,
+                };
+                let convert = |d: &Derivative, value_kt: f64| {
+                    (
+                        u.from_kt(d.value + moved_unit(value_kt)) * k,
+                        u.from_kt(d.error) * k,
+                    )
+                };
+                let (dp, ep) = convert(&s.d_power, bound.baseline_power);
+                let (db, eb) = convert(&s.d_bound, bound.power);
                 let x = parameter_value(model, kind, index);
-                let designed = design.as_ref().and_then(|(_, d)| d.get(i)).map(convert);
+                let designed = design
+                    .as_ref()
+                    .and_then(|(_, power, d)| d.get(i).map(|d| convert(d, *power)));
                 let json = ParameterJson {
                     kind,
                     name: parameter_name(model, kind, index),
@@ -126,7 +140,7 @@ impl SensitivityReport {
             bound: upper,
             parameters: parameters.into_iter().map(|(_, p)| p).collect(),
             joint_chain: model.environments.is_some(),
-            design: design.map(|(name, _)| name),
+            design: design.map(|(name, _, _)| name),
         }
     }
 
@@ -190,7 +204,7 @@ impl SensitivityReport {
             out.push_str(&super::table::wrap("This model has environments: each parameter is one copy in the joint chain (state@environment), moved alone; a physical parameter shared by all copies moves them together, the sum of their derivatives.", "  ", 78));
             out.push('\n');
         }
-        out.push_str(&super::table::wrap("The bound's derivative is the envelope theorem's: the derivative of Phi at the certified optimum held fixed; the power's is the adjoint of the steady state (one transposed solve for every parameter; methods, section 10). Each derivative's error bound is shown where it exceeds 1%. Derivatives are local: a factor of 2 to 10 in a rate is not a small change, and a real design needs experimental validation.", "  ", 78));
+        out.push_str(&super::table::wrap("The bound's derivative is the envelope theorem's: the derivative of Phi at the certified optimum held fixed, with the routability multipliers where pathways are restricted; the power's is the adjoint of the steady state (one transposed solve for every parameter; methods, section 10). Each derivative's error bound is shown where it exceeds 1%. Derivatives are local: a factor of 2 to 10 in a rate is not a small change, and a real design needs experimental validation.", "  ", 78));
         out.push('\n');
         out
     }
@@ -275,7 +289,8 @@ impl SensitivityReport {
     }
 }
 
-fn parameter_name(model: &Model, kind: ParameterKind, index: usize) -> String {
+/// The name of a parameter as the report prints it.
+pub fn parameter_name(model: &Model, kind: ParameterKind, index: usize) -> String {
     match kind {
         ParameterKind::Rate => format!("rate of {}", transition_name(model, index)),
         ParameterKind::Energy => format!("energy of {}", model.state_names[index]),

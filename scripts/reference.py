@@ -20,7 +20,11 @@ also from a closed formula derived in `two_state_closed_form`. It also writes
 tests/fixtures/bound_mp/<case>.json: the bound (all pairs, the model's own pairs, within each
 environment state, or a pair restriction) bracketed to 1e-30 relative at 50 digits by a damped
 Newton method and its certificate (`bound_mp`), checked against the cvxpy values where those
-solve the same program. `cargo test` only reads these files; CI re-runs this script in
+solve the same program; tests/fixtures/designs/<model>.json: the power of every design the demo
+saved in results/<model>/design.json, from the designed network's steady state at 50 digits; and
+tests/fixtures/sensitivity/<case>.json: the derivative of the baseline power, the bound and the
+rank-1 saved design's power with respect to every parameter, by central differences of those
+50-digit computations (`sensitivity_fixtures`). `cargo test` only reads these files; CI re-runs this script in
 a fresh virtual environment with the pinned versions of scripts/requirements.txt and fails if
 any fixture changes.
 
@@ -1055,7 +1059,8 @@ def sensitivity_fixtures():
             entries.append(entry)
         fixture = {
             "model": str(path.relative_to(ROOT)),
-            "design": (str(design_file.relative_to(ROOT)) + " rank 1") if design_file else None,
+            "design": str(design_file.relative_to(ROOT)) if design_file else None,
+            "design_rank": 1 if design_file else None,
             "step": float(h),
             "parameters": entries,
         }

@@ -14,14 +14,14 @@
 //! files. Derivatives are per kT; the report converts them to the model's units.
 
 use crate::bound::design::Pathway;
-use crate::bound::newton::fitted_multipliers;
+use crate::bound::newton::{fitted_multipliers, FITTED_ROWS_LIMIT};
 use crate::bound::objective::Objective;
 use crate::bound::Bound;
 use crate::model::{Channel, Model, Network, PairSelection};
 use crate::steady::{self, SolveError, SteadySettings};
 
 /// Kind of a model parameter.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum ParameterKind {
     /// `ln k` of a transition: forward and backward rates scaled together (affinity fixed).
@@ -446,7 +446,7 @@ fn routability_lift(
     let g = objective.gradient(&bound.log_p);
     let mu = fitted_multipliers(&constraints, &g).ok_or_else(|| {
         SolveError::NotDetermined(format!(
-            "the bound's sensitivities need the multipliers of its {} routability rows, which could not be fitted (more than 64 groups of allowed pairs, or not finite); fix: allow pathways between more pairs so that fewer groups remain",
+            "the bound's sensitivities need the multipliers of its {} routability rows, which could not be fitted (more than {FITTED_ROWS_LIMIT} rows, or not finite); fix: list pairs in the model's [pathways] table that join its states into fewer groups",
             constraints.rows.len()
         ))
     })?;

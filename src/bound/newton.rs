@@ -208,7 +208,7 @@ fn certificate(constraints: &Constraints, g: &[f64], p: &[f64], value: f64, mu: 
 }
 
 /// Most routability rows for which [`fitted_multipliers`] runs (its SVD costs `n m^2`).
-const FITTED_ROWS_LIMIT: usize = 64;
+pub(crate) const FITTED_ROWS_LIMIT: usize = 64;
 
 /// Multipliers that make `h = g + A^T mu` as level as possible, by least squares on
 /// `A^T mu - lambda 1 = -g` (columns scaled to unit length, SVD). At a feasible point the
@@ -217,7 +217,7 @@ const FITTED_ROWS_LIMIT: usize = 64;
 /// system whose rows hold rates of up to 1e6 beside probabilities of 1e-9 (measured: a gap of
 /// 4.6% that these multipliers close to 1e-7 on a 6-state network restricted to one pair).
 /// `None` without rows, with too many, or if the fit is not finite.
-pub fn fitted_multipliers(constraints: &Constraints, g: &[f64]) -> Option<Vec<f64>> {
+pub(crate) fn fitted_multipliers(constraints: &Constraints, g: &[f64]) -> Option<Vec<f64>> {
     let m = constraints.rows.len();
     if m == 0 || m > FITTED_ROWS_LIMIT {
         return None;

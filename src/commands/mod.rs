@@ -714,7 +714,6 @@ pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Err
             predicted: None,
             near_equilibrium: None,
             strong_drive: None,
-            compared: pairs == PairSelection::All,
         };
         let Some(net) = net else {
             row.failure = Some("a backward rate leaves the floating-point range".into());
@@ -741,6 +740,7 @@ pub fn regimes_on(model: &Model, request: &RegimesRequest) -> Result<String, Err
         units: crate::report::UnitsJson::of(model),
         scaled: request.scale.trim().to_string(),
         pairs: crate::report::bound::describe_pairs(model, &pairs),
+        closed_forms_compared: pairs == PairSelection::All,
         points: rows,
     };
     let rendered = Rendered {

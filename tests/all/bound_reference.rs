@@ -23,12 +23,7 @@ fn number(text: &serde_json::Value) -> f64 {
 
 #[test]
 fn bounds_match_the_fifty_digit_reference() {
-    let dir = root().join("tests/fixtures/bound_mp");
-    let mut cases: Vec<_> = std::fs::read_dir(&dir)
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .collect();
-    cases.sort();
+    let cases = crate::common::files_in("tests/fixtures/bound_mp");
     assert!(cases.len() >= 17, "{} reference cases", cases.len());
     for case in cases {
         let reference: serde_json::Value =

@@ -84,6 +84,17 @@ pub fn close(a: f64, b: f64, rel: f64, abs: f64) -> bool {
     (a - b).abs() <= rel * a.abs().max(b.abs()) + abs
 }
 
+/// The files of a repository directory (not its subdirectories), sorted by path.
+pub fn files_in(dir: &str) -> Vec<PathBuf> {
+    let mut files: Vec<PathBuf> = std::fs::read_dir(root().join(dir))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.is_file())
+        .collect();
+    files.sort();
+    files
+}
+
 /// Every example model and every random fixture model, as repository-relative paths.
 pub fn all_models() -> Vec<String> {
     let mut out = Vec::new();

@@ -3,7 +3,7 @@
 //! standard output, nothing written, within a time limit. Two hostile inputs are generated
 //! here rather than committed: a 50 MB file and a million states without transitions.
 
-use crate::common::{root, scratch};
+use crate::common::scratch;
 use std::path::Path;
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
@@ -92,11 +92,7 @@ fn expectation(path: &Path) -> String {
 
 #[test]
 fn every_corpus_file_is_refused_cleanly() {
-    let mut files: Vec<_> = std::fs::read_dir(root().join("tests/corpus"))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .collect();
-    files.sort();
+    let files = crate::common::files_in("tests/corpus");
     assert!(
         files.len() >= 40,
         "the corpus has only {} files",

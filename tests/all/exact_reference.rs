@@ -268,13 +268,10 @@ fn the_certified_bound_never_falls_below_the_exact_baseline_power() {
 /// baseline power.
 #[test]
 fn regression_models_through_the_binary_match_exact_arithmetic() {
-    let dir = crate::common::root().join("tests/fixtures/regression");
-    let mut files: Vec<_> = std::fs::read_dir(&dir)
-        .unwrap()
-        .map(|e| e.unwrap().path())
+    let files: Vec<_> = crate::common::files_in("tests/fixtures/regression")
+        .into_iter()
         .filter(|p| p.extension().is_some_and(|x| x == "toml"))
         .collect();
-    files.sort();
     assert!(files.len() >= 4);
     for file in files {
         let name = file.display().to_string();

@@ -4,20 +4,9 @@
 //! part files and checkpoints. A panic anywhere fails the test; each mutated input is shown by
 //! proptest when it does. Long runs stay with cargo-fuzz (DEVELOPERS.md).
 
-use crate::common::{root, scratch};
+use crate::common::{files_in, root, scratch};
 use ergopath::fuzzing::{file_bytes, model_bytes};
 use proptest::prelude::*;
-use std::path::PathBuf;
-
-fn files_in(dir: &str) -> Vec<PathBuf> {
-    let mut files: Vec<PathBuf> = std::fs::read_dir(root().join(dir))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.is_file())
-        .collect();
-    files.sort();
-    files
-}
 
 /// Every committed model-like input: the fuzz seeds, the shipped models, the fixtures, the
 /// regression models and the hostile corpus.

@@ -350,3 +350,61 @@ fn checked_verdicts_hold_on_a_generated_set() {
         "{named} of {points} named: the verdict says too little"
     );
 }
+
+/// `regimes` on an environment model solves over the model's own pairs (within each
+/// environment state, as `bound` does): at scale 1 its exact headroom is the headroom of the
+/// 50-digit bound of `scripts/reference.py` (`tests/fixtures/bound_mp/flicker.json`, within
+/// each environment state). The closed forms estimate the all-pairs bound, so no error is
+/// given there; on the walker (all pairs) they are.
+#[test]
+fn regimes_of_an_environment_model_use_its_own_pairs() {
+    let fixture: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(
+            crate::common::root().join("tests/fixtures/bound_mp/flicker.json"),
+        )
+        .unwrap(),
+    )
+    .unwrap();
+    assert_eq!(fixture["pairs_scope"], "within each environment state");
+    let exact = |k: &str| fixture[k].as_str().unwrap().parse::<f64>().unwrap();
+    let expected = exact("value_model_unit") - exact("baseline_power_model_unit");
+    let args = [
+        "--scale", "work", "--from", "1", "--to", "2", "--points", "2", "--json",
+    ];
+    let flicker =
+        crate::common::run_json(&[&["regimes", "problems/flicker.toml"][..], &args].concat());
+    assert_eq!(flicker["closed_forms_compared"], false);
+    let at_one = &flicker["points"][0];
+    assert_eq!(at_one["scale"].as_f64(), Some(1.0));
+    let headroom = at_one["headroom"].as_f64().unwrap();
+    // The bound certifies to 1e-8 relative; measured agreement 1e-15.
+    assert!(
+        (headroom - expected).abs() <= 1e-9 * expected.abs(),
+        "{headroom} vs {expected}"
+    );
+    let out = run(&[
+        "regimes",
+        "problems/flicker.toml",
+        "--scale",
+        "work",
+        "--from",
+        "1",
+        "--to",
+        "2",
+        "--points",
+        "2",
+        "--csv",
+    ]);
+    let csv = String::from_utf8(out.stdout).unwrap();
+    let mut lines = csv.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let column = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    for line in lines {
+        let cells: Vec<&str> = line.split(',').collect();
+        assert_eq!(cells[column("near_equilibrium_error")], "", "{line}");
+        assert_eq!(cells[column("strong_drive_error")], "", "{line}");
+    }
+    let walker =
+        crate::common::run_json(&[&["regimes", "problems/walker.toml"][..], &args].concat());
+    assert_eq!(walker["closed_forms_compared"], true);
+}

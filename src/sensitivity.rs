@@ -133,15 +133,19 @@ fn flux_derivative(kind: ParameterKind, j: f64, b_q: f64, at_from: bool) -> f64 
 
 /// The derivative of `F(q) = sum_c J_c (u_c + explicit_c)` with respect to every parameter at
 /// fixed `q`, where `u_c` multiplies the flux change and `explicit` says how the channel's own
-/// factor moves with the parameter (`d u_c / d theta`); each is returned with the sum of the
-/// magnitudes of its terms (for its round-off).
+/// factor moves with the parameter (`d u_c / d theta`); each is returned with a magnitude
+/// that an error estimate scales: `sum_c m_c |dJ_c| + |explicit_c| (f_c q_from + b_c q_to)`,
+/// where `|dJ_c|` counts a net flux as its one-way parts (a nearly balanced channel's `J`
+/// carries the error of its parts, not its own size) and `m_c` is the given magnitude of the
+/// weight's error or parts.
+#[derive(Clone)]
 struct Linearised<'a> {
     network: &'a Network,
-    /// `J_c` and `b_c q_to` at `q`.
-    flux: Vec<f64>,
-    backward_inflow: Vec<f64>,
+    flux: ChannelFluxes,
     /// `u_c`.
     weight: Vec<f64>,
+    /// `m_c`: the magnitude that multiplies each channel's flux change.
+    magnitude: Vec<f64>,
     /// `J_c d u_c / d w_c`: 1 for the power (u = w) and for the bound (u = w + Delta).
     work_explicit: f64,
     /// `d u_c / d E_from` (and minus it for `E_to`): 0 for the power, -1 for the bound.
@@ -150,16 +154,24 @@ struct Linearised<'a> {
 
 impl<'a> Linearised<'a> {
     /// The derivative's terms of channel `c` for a parameter of `kind` acting at its `from`
-    /// end (or at its `to` end, for an energy).
-    fn term(&self, kind: ParameterKind, c: usize, at_from: bool) -> f64 {
-        let d_j = flux_derivative(kind, self.flux[c], self.backward_inflow[c], at_from);
+    /// end (or at its `to` end, for an energy): `(value, magnitude)`.
+    fn term(&self, kind: ParameterKind, c: usize, at_from: bool) -> (f64, f64) {
+        let f = &self.flux;
+        let d_j = flux_derivative(kind, f.net[c], f.backward_inflow[c], at_from);
+        // `dJ/d ln k = J` is a difference of one-way fluxes; the others are one product.
+        let d_j_magnitude = match kind {
+            ParameterKind::Rate => f.one_way[c],
+            _ => f.backward_inflow[c],
+        };
         let explicit = match kind {
-            ParameterKind::Work => self.work_explicit * self.flux[c],
-            ParameterKind::Energy if at_from => self.energy_explicit * self.flux[c],
-            ParameterKind::Energy => -self.energy_explicit * self.flux[c],
+            ParameterKind::Work => self.work_explicit,
+            ParameterKind::Energy if at_from => self.energy_explicit,
+            ParameterKind::Energy => -self.energy_explicit,
             _ => 0.0,
         };
-        self.weight[c] * d_j + explicit
+        let value = self.weight[c] * d_j + explicit * f.net[c];
+        let magnitude = self.magnitude[c] * d_j_magnitude + explicit.abs() * f.one_way[c];
+        (value, magnitude)
     }
 
     /// Every state energy's derivative `(value, sum of magnitudes)`, in one pass over the
@@ -168,9 +180,9 @@ impl<'a> Linearised<'a> {
         let mut out = vec![(0.0, 0.0); self.network.len()];
         for (c, ch) in self.network.channels.iter().enumerate() {
             for (state, at_from) in [(ch.from, true), (ch.to, false)] {
-                let t = self.term(ParameterKind::Energy, c, at_from);
+                let (t, m) = self.term(ParameterKind::Energy, c, at_from);
                 out[state].0 += t;
-                out[state].1 += t.abs();
+                out[state].1 += m;
             }
         }
         out
@@ -183,10 +195,7 @@ impl<'a> Linearised<'a> {
     fn all(&self, parameters: &[Parameter], temperature: f64) -> Vec<(f64, f64)> {
         let net = self.network;
         let energy = self.energy_derivatives();
-        let single = |kind, c: usize| {
-            let t = self.term(kind, c, true);
-            (t, t.abs())
-        };
+        let single = |kind, c: usize| self.term(kind, c, true);
         let of = |p: &Parameter| match p.kind {
             ParameterKind::Energy => energy[p.index],
             ParameterKind::Temperature => {
@@ -209,25 +218,51 @@ impl<'a> Linearised<'a> {
     }
 }
 
-/// `J_c` and `b_c q_to` of every channel at `q`.
-fn fluxes_at(network: &Network, q: &[f64]) -> (Vec<f64>, Vec<f64>) {
-    network
-        .channels
-        .iter()
-        .map(|c| (c.flux(q), c.backward * q[c.to]))
-        .unzip()
+/// Each channel's net flux `J_c`, its backward part `b_c q_to` and both one-way parts
+/// `f_c q_from + b_c q_to`, at one distribution `q`.
+#[derive(Clone)]
+struct ChannelFluxes {
+    net: Vec<f64>,
+    backward_inflow: Vec<f64>,
+    one_way: Vec<f64>,
+}
+
+impl ChannelFluxes {
+    fn at(network: &Network, q: &[f64]) -> Self {
+        let channels = &network.channels;
+        Self {
+            net: channels.iter().map(|c| c.flux(q)).collect(),
+            backward_inflow: channels.iter().map(|c| c.backward * q[c.to]).collect(),
+            one_way: channels
+                .iter()
+                .map(|c| c.forward * q[c.from] + c.backward * q[c.to])
+                .collect(),
+        }
+    }
+}
+
+/// The adjoint potentials, the refinement step's correction and the solution for the
+/// round-off floor of the residual (both error estimates of `lambda`).
+struct Adjoint {
+    lambda: Vec<f64>,
+    correction: Vec<f64>,
+    below_floor: Vec<f64>,
+}
+
+impl Adjoint {
+    /// The error estimate of `lambda_to - lambda_from` for channel `c`.
+    fn difference_error(&self, c: &Channel) -> f64 {
+        let d = |v: &[f64]| (v[c.to] - v[c.from]).abs();
+        d(&self.correction) + d(&self.below_floor)
+    }
 }
 
 /// The adjoint of the steady state: `lambda` with `R^T lambda = g - (g . p) 1`, `g` the
 /// gradient of the power in `p` (`g_k = sum_c w_c (f_c [k = from] - b_c [k = to])`), and
-/// `lambda` zero at the most probable state; with one refinement step, whose correction is
-/// returned as the error estimate of each component. Then `dP/dtheta = sum_c (w_c - lambda_to +
+/// `lambda` zero at the most probable state; with one refinement step, whose correction and
+/// the solution for the residual's round-off floor are returned as its error estimates. Then `dP/dtheta = sum_c (w_c - lambda_to +
 /// lambda_from) dJ_c/dtheta` at fixed `p` (methods, section 10).
-fn adjoint(
-    network: &Network,
-    p: &[f64],
-    factors: &steady::Factors,
-) -> Result<(Vec<f64>, Vec<f64>), SolveError> {
+fn adjoint(network: &Network, p: &[f64], factors: &steady::Factors) -> Result<Adjoint, SolveError> {
     let n = network.len();
     let mut g = vec![0.0; n];
     for c in &network.channels {
@@ -273,53 +308,96 @@ fn adjoint(
             "the adjoint of the steady state is not finite; fix: rescale the rates that span many decades".into(),
         ));
     }
-    Ok((lambda, correction))
+    // The refinement sees only residuals above the round-off of computing them: that floor,
+    // `eps` times the magnitudes of each row's terms, carried through one more solve, is the
+    // error left below it (measured: on a stiff generated 4-state model the correction alone
+    // stated 9.9e-19 where the 50-digit reference differed by 1.4e-18).
+    let mut floor: Vec<f64> = h.iter().map(|v| v.abs()).collect();
+    for c in &network.channels {
+        let d = (lambda[c.to] - lambda[c.from]).abs();
+        floor[c.from] += c.forward * d;
+        floor[c.to] += c.backward * d;
+    }
+    floor.iter_mut().for_each(|v| *v *= 4.0 * f64::EPSILON);
+    // Like `h`, the right-hand side must be orthogonal to `p` for `R^T x = rhs` to have a
+    // solution; without the projection the excess lands at the reference state as a source.
+    let floor_p: f64 = floor.iter().zip(p).map(|(f, p)| f * p).sum();
+    floor.iter_mut().for_each(|v| *v -= floor_p);
+    let mut below_floor = solve(&floor);
+    below_floor.resize(n, 0.0);
+    Ok(Adjoint {
+        lambda,
+        correction,
+        below_floor,
+    })
 }
 
-/// The power's derivative sums of `network` for `parameters` (indices into its own channels
-/// and states): `(value, sum of magnitudes)` and `(_, adjoint error)` per parameter, from the
-/// steady state and its adjoint (methods, section 10).
-#[allow(clippy::type_complexity)]
-fn power_sums(
+/// The power's derivatives of `network` for `parameters` (indices into its own channels and
+/// states), from the steady state and its adjoint (methods, section 10). The error adds the
+/// adjoint's (its correction and round-off floor through every term) to the steady state's
+/// componentwise accuracy and the round-off of the sums, both on the magnitudes of the parts.
+fn power_derivatives(
     network: &Network,
     parameters: &[Parameter],
     temperature: f64,
-) -> Result<(Vec<(f64, f64)>, Vec<(f64, f64)>), SolveError> {
+) -> Result<Vec<Derivative>, SolveError> {
     let (state, factors) = steady::solve_factored(network, &SteadySettings::default())?;
     let p = state.probabilities;
-    let (lambda, correction) = adjoint(network, &p, &factors)?;
-    let (flux, backward_inflow) = fluxes_at(network, &p);
+    let adjoint = adjoint(network, &p, &factors)?;
+    let lambda = &adjoint.lambda;
     let difference = |v: &[f64], c: &Channel| v[c.to] - v[c.from];
+    let fluxes = ChannelFluxes::at(network, &p);
     let power = Linearised {
         network,
-        flux,
-        backward_inflow,
+        flux: fluxes.clone(),
         weight: network
             .channels
             .iter()
-            .map(|c| c.work - difference(&lambda, c))
+            .map(|c| c.work - difference(lambda, c))
+            .collect(),
+        magnitude: network
+            .channels
+            .iter()
+            .map(|c| c.work.abs() + lambda[c.to].abs() + lambda[c.from].abs())
             .collect(),
         work_explicit: 1.0,
         energy_explicit: 0.0,
     };
-    // The same sums with the refinement correction in place of the weights bound the error the
-    // adjoint leaves.
+    // The same magnitudes with the refinement correction in place of the weights bound the
+    // error the adjoint leaves.
+    let corrections: Vec<f64> = network
+        .channels
+        .iter()
+        .map(|c| adjoint.difference_error(c))
+        .collect();
     let power_error = Linearised {
         network,
-        flux: power.flux.iter().map(|j| j.abs()).collect(),
-        backward_inflow: power.backward_inflow.clone(),
-        weight: network
-            .channels
-            .iter()
-            .map(|c| difference(&correction, c).abs())
-            .collect(),
+        flux: fluxes,
+        magnitude: corrections.clone(),
+        weight: corrections,
         work_explicit: 0.0,
         energy_explicit: 0.0,
     };
-    Ok((
-        power.all(parameters, temperature),
-        power_error.all(parameters, temperature),
-    ))
+    // The steady state's own componentwise error moves every one-way flux in proportion.
+    let through_fluxes = Linearised {
+        magnitude: power.weight.iter().map(|w| w.abs()).collect(),
+        ..power.clone()
+    };
+    let accuracy = steady::probability_accuracy(network.len());
+    let eps = 16.0 * f64::EPSILON;
+    let magnitudes = through_fluxes.all(parameters, temperature);
+    let adjoint_errors = power_error.all(parameters, temperature);
+    Ok(power
+        .all(parameters, temperature)
+        .into_iter()
+        .zip(magnitudes.iter().zip(&adjoint_errors))
+        .map(
+            |((value, parts), (&(_, flux_parts), &(_, adjoint_error)))| Derivative {
+                value,
+                error: adjoint_error + accuracy * flux_parts + eps * parts,
+            },
+        )
+        .collect())
 }
 
 /// The derivative of a design's power (baseline plus `pathways`, the added rates held fixed)
@@ -346,12 +424,8 @@ pub fn design_power(model: &Model, pathways: &[Pathway]) -> Result<Vec<Derivativ
         .filter(|p| p.kind != ParameterKind::Temperature)
         .chain(added)
         .collect();
-    let (values, errors) = power_sums(&joint, &asked, t)?;
-    let eps = 16.0 * f64::EPSILON;
-    let derivative = |i: usize| Derivative {
-        value: values[i].0,
-        error: errors[i].1 + eps * values[i].1,
-    };
+    let derivatives = power_derivatives(&joint, &asked, t)?;
+    let derivative = |i: usize| derivatives[i];
     let first_added = asked.len() - pathways.len();
     let mut out: Vec<Derivative> = (0..first_added).map(derivative).collect();
     for (e, w) in pathways.iter().enumerate() {
@@ -460,9 +534,9 @@ fn routability_lift(
 /// Every parameter's derivatives of the baseline power (adjoint of the steady state: one
 /// transposed solve for all parameters) and of the certified bound `bound` (envelope theorem:
 /// the explicit derivative of `Phi` at `p*`, one pass over the channels per parameter).
-/// Errors: the adjoint's refinement correction carried through, and for the bound the
-/// first-order effect of `p*` being optimal only to the certified gap (`sqrt(gap)` relative to
-/// the terms), each plus round-off of the sums.
+/// Errors (methods, section 10): the adjoint's and the steady state's carried through the
+/// one-way fluxes, and for the bound the first-order effect of `p*` being located only to the
+/// certified gap or `Phi`'s round-off, each plus round-off of the sums.
 pub fn analyse(
     model: &Model,
     bound: &Bound,
@@ -471,14 +545,26 @@ pub fn analyse(
     let network = &model.network;
     let t = model.units.temperature;
     let all = parameters(model);
-    let (powers, errors) = power_sums(network, &all, t)?;
-    let (flux, backward_inflow) = fluxes_at(network, &bound.p);
+    let powers = power_derivatives(network, &all, t)?;
     let log_p = &bound.log_p;
     let lift = routability_lift(network, bound, pairs)?;
+    let e = &network.energies;
     let envelope = Linearised {
         network,
-        flux,
-        backward_inflow,
+        flux: ChannelFluxes::at(network, &bound.p),
+        magnitude: network
+            .channels
+            .iter()
+            .map(|c| {
+                c.work.abs()
+                    + log_p[c.to].abs()
+                    + e[c.to].abs()
+                    + log_p[c.from].abs()
+                    + e[c.from].abs()
+                    + lift[c.to].abs()
+                    + lift[c.from].abs()
+            })
+            .collect(),
         weight: network
             .channels
             .iter()
@@ -493,19 +579,26 @@ pub fn analyse(
         work_explicit: 1.0,
         energy_explicit: -1.0,
     };
-    let gap = bound.relative_gap().sqrt();
+    // The optimum is located only as well as `Phi` is resolved there: by the certified gap or,
+    // where larger, by the round-off of `Phi` itself (both relative to the bound).
+    let resolved = bound.roundoff / bound.power.abs().max(f64::MIN_POSITIVE);
+    let gap = bound.relative_gap().max(resolved).sqrt();
     let eps = 16.0 * f64::EPSILON;
     let bounds = envelope.all(&all, t);
+    // Where `p*` is optimal only to the gap, each `ln p` and each multiplier in a weight is
+    // off by about `sqrt(gap)`, whatever the weight's own size, and each one-way flux by that
+    // fraction of itself: four such shifts per channel besides the weight's own magnitude.
+    let optimality = Linearised {
+        magnitude: envelope.weight.iter().map(|w| w.abs() + 4.0).collect(),
+        ..envelope.clone()
+    }
+    .all(&all, t);
     all.iter()
-        .zip(powers.iter().zip(&errors).zip(&bounds))
-        .map(|(&parameter, ((&(dp, dp_terms), &(_, dp_adjoint)), &(db, db_terms)))| {
-            let d_power = Derivative {
-                value: dp,
-                error: dp_adjoint + eps * dp_terms,
-            };
+        .zip(powers.iter().zip(bounds.iter().zip(&optimality)))
+        .map(|(&parameter, (&d_power, (&(db, db_parts), &(_, db_terms))))| {
             let d_bound = Derivative {
                 value: db,
-                error: (gap + eps) * db_terms,
+                error: gap * db_terms + eps * db_parts,
             };
             if d_power.value.is_finite() && d_bound.value.is_finite() {
                 Ok(Sensitivity {

@@ -24,7 +24,11 @@ solve the same program; tests/fixtures/designs/<model>.json: the power of every 
 saved in results/<model>/design.json, from the designed network's steady state at 50 digits; and
 tests/fixtures/sensitivity/<case>.json: the derivative of the baseline power, the bound and the
 rank-1 saved design's power with respect to every parameter, by central differences of those
-50-digit computations (`sensitivity_fixtures`). `cargo test` only reads these files; CI re-runs this script in
+50-digit computations (`sensitivity_fixtures`); and tests/fixtures/capabilities/<model>.json
+(`capability_fixtures`): for every saved rate-cap sweep point and every reached speed-frontier
+cap, the rate-capped program (methods section 5) solved by cvxpy/Clarabel at tight tolerances
+with its status, and for every scaled model of the saved regimes report its 50-digit headroom
+(`bound_mp`). `cargo test` only reads these files; CI re-runs this script in
 a fresh virtual environment with the pinned versions of scripts/requirements.txt and fails if
 any fixture changes.
 
@@ -927,6 +931,11 @@ def design_fixtures():
         if search.exists():
             for d in json.loads(search.read_text())["designs"]:
                 designs.append((f"design.json rank {d['rank']}", d))
+        sweep = found / "sweep-rate-cap.json"
+        if sweep.exists():
+            for i, point in enumerate(json.loads(sweep.read_text())["points"]):
+                if point["pathways"]:
+                    designs.append((f"sweep-rate-cap.json point {i}", point))
         cases = []
         for source, d in designs:
             pathways = [(index[w["from"]], index[w["to"]], w["forward"], w["backward"])
@@ -941,6 +950,129 @@ def design_fixtures():
         fixture = {"model": str(path.relative_to(ROOT)), "designs": cases}
         (DESIGNS / f"{path.stem}.json").write_text(json.dumps(fixture, indent=1) + "\n")
         print(f"tests/fixtures/designs/{path.stem}.json: {len(cases)} designs at 50 digits")
+
+
+CAPABILITIES = ROOT / "tests" / "fixtures" / "capabilities"
+
+
+def candidate_pairs(model, envs):
+    """Every unordered pair of joint states within one environment state (all pairs without
+    environments): the candidates of the shipped models' sweeps and rate-capped programs."""
+    count = len(envs) if envs else 1
+    n = len(model["names"])
+    return [(i, j) for i in range(n) for j in range(i + 1, n) if i % count == j % count]
+
+
+def capped_cvxpy(model, candidates, cap):
+    """The rate-capped program of methods section 5 with cvxpy and Clarabel (double precision),
+    written here from that section: maximise Phi(p) - sum_e [f_e ln(f_e/g_e) + g_e ln(g_e/f_e)]
+    over p in the simplex and one-way fluxes f_e (a -> b), g_e (b -> a) >= 0 of each candidate
+    pair, subject to flux balance at every state, f_e <= cap p_a and g_e <= cap p_b. Returns
+    (status, value in kT per time unit)."""
+    n = len(model["names"])
+    energy = np.array([float(e) for e in model["energy"]])
+    rates = {}
+    work_gradient = np.zeros(n)
+    for a, b, kf, kb, work, _ in model["channels"]:
+        rates[(a, b)] = rates.get((a, b), 0.0) + float(kf)
+        rates[(b, a)] = rates.get((b, a), 0.0) + float(kb)
+        work_gradient[a] += float(work * kf)
+        work_gradient[b] -= float(work * kb)
+    source = np.array([j for (j, i) in rates])
+    target = np.array([i for (j, i) in rates])
+    r = np.array(list(rates.values()))
+    c = np.exp(energy[target] - energy[source])
+    gen = np.zeros((n, n))
+    for (j, i), k in rates.items():
+        gen[i, j] += k
+        gen[j, j] -= k
+    m = len(candidates)
+    incidence = np.zeros((n, m))  # net inflow of f_e: out of a, into b
+    for e, (a, b) in enumerate(candidates):
+        incidence[a, e] -= 1.0
+        incidence[b, e] += 1.0
+    start = np.array([a for a, _ in candidates])
+    end = np.array([b for _, b in candidates])
+    # Conditioning, exact in exact arithmetic: rel_entr(x, c y) = rel_entr(x, y) - x ln c moves
+    # the energy factors (up to e^80 on the photoswitch) into the linear part.
+    linear = work_gradient + np.bincount(source, weights=r * np.log(c), minlength=n)
+    p, f, g = cp.Variable(n), cp.Variable(m), cp.Variable(m)
+    objective = (linear @ p - r @ cp.rel_entr(p[source], p[target])
+                 - cp.sum(cp.rel_entr(f, g) + cp.rel_entr(g, f)))
+    constraints = [cp.sum(p) == 1, gen @ p + incidence @ (f - g) == 0,
+                   f <= cap * p[start], g <= cap * p[end]]
+    problem = cp.Problem(cp.Maximize(objective), constraints)
+    try:
+        # Tolerances far below Clarabel's defaults (1e-8): at the defaults the value was off by
+        # up to 1e-6 relative on the shipped models, at these by 1e-13 to 4e-11 (against the
+        # 50-digit power of designs at the same cap); where they cannot be met the status says
+        # `optimal_inaccurate` and the value is not used.
+        problem.solve(solver=cp.CLARABEL, tol_gap_abs=1e-12, tol_gap_rel=1e-12, tol_feas=1e-12,
+                      tol_ktratio=1e-10, max_iter=400)
+    except cp.error.SolverError as e:
+        return f"solver error: {str(e).splitlines()[0]}", None
+    return problem.status, problem.value
+
+
+def stored_scaled(model, factor):
+    """Every work label times `factor` and each drive raised by `(factor - 1) w`, rates kept
+    (the `regimes --scale stored` family: affinities unchanged, the store charged higher)."""
+    channels = [(a, b, kf, kb, w * factor, d + (factor - 1) * w)
+                for a, b, kf, kb, w, d in model["channels"]]
+    return dict(model, channels=channels)
+
+
+def capability_fixtures():
+    """Writes tests/fixtures/capabilities/<model>.json for every shipped model, from what the
+    demo saved in results/<model>/: at every point of the rate-cap sweep and at every cap of
+    the bound's speed frontier (and its rate-capped design's cap), the rate-capped program's
+    optimum from cvxpy (`capped_cvxpy`, the per-rate limit min(cap, total rate) over every
+    candidate pair; status kept); and at every scale of the saved `regimes --scale stored`
+    sweep, the exact headroom from the 50-digit bound (`bound_mp`) of the scaled network."""
+    CAPABILITIES.mkdir(parents=True, exist_ok=True)
+    for path in sorted((ROOT / "problems").glob("*.toml")):
+        model = load_model(path)
+        _, envs, _ = model_pair_context(path)
+        to_unit = 1 / model["to_kt"]
+        found = ROOT / "results" / path.stem
+        pairs = candidate_pairs(model, envs)
+
+        def capped(cap):
+            status, value = capped_cvxpy(model, pairs, cap)
+            finite = value is not None and math.isfinite(value)
+            return {"cap": cap, "status": status,
+                    "value_model_unit": value * to_unit if finite else None}
+
+        sweep = json.loads((found / "sweep-rate-cap.json").read_text())
+        total = sweep["budget"]["total_rate"]
+        fixture = {
+            "model": str(path.relative_to(ROOT)),
+            "sweep": [capped(min(point["value"], total or math.inf))
+                      for point in sweep["points"]],
+        }
+        bound = json.loads((found / "bound.json").read_text())
+        caps = [row["speed"] for row in bound["speed_table"] if row["status"] == "reached"]
+        if bound.get("rate_capped"):
+            caps.append(bound["rate_capped"]["rate_cap"])
+        fixture["bound_caps"] = [capped(cap) for cap in caps]
+        regimes = found / "regimes-stored.json"
+        if regimes.exists():
+            groups = pair_groups(path, model, "all")
+            rows = []
+            for point in json.loads(regimes.read_text())["points"]:
+                result = bound_mp(stored_scaled(model, mp.mpf(point["scale"])), groups)
+                rows.append({
+                    "scale": point["scale"],
+                    "headroom_model_unit":
+                        mp_digits((result["value"] - result["baseline_power"]) * to_unit),
+                    "bracket_model_unit":
+                        float((result["upper"] - result["value"] + result["roundoff"]) * to_unit),
+                })
+            fixture["regimes_stored"] = rows
+        (CAPABILITIES / f"{path.stem}.json").write_text(json.dumps(fixture, indent=1) + "\n")
+        solved = sum(x["status"] == "optimal" for x in fixture["sweep"] + fixture["bound_caps"])
+        print(f"tests/fixtures/capabilities/{path.stem}.json: {solved} capped programs solved, "
+              f"{len(fixture.get('regimes_stored', []))} regimes points")
 
 
 SENSITIVITY = ROOT / "tests" / "fixtures" / "sensitivity"
@@ -1089,6 +1221,7 @@ def main():
     precision_fixtures(paths)
     bound_mp_fixtures(cvxpy_values)
     design_fixtures()
+    capability_fixtures()
     sensitivity_fixtures()
     return 0
 

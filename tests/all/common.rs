@@ -61,6 +61,14 @@ pub fn run(args: &[&str]) -> Output {
 }
 
 /// Runs the binary with `args`, asserts that it succeeded, and parses its `--json` output.
+/// Arguments of `regimes` over the stored parameter scale from 0.01 to 1000, as JSON.
+pub fn stored_scale_regimes<'a>(model: &'a str, points: &'a str) -> [&'a str; 11] {
+    [
+        "regimes", model, "--scale", "stored", "--from", "0.01", "--to", "1000", "--points",
+        points, "--json",
+    ]
+}
+
 pub fn run_json(args: &[&str]) -> serde_json::Value {
     let out = run(args);
     assert!(
@@ -169,3 +177,78 @@ pub fn certified_bound(
 /// a different value) and keep any failure proptest records in `tests/proptest-regressions/`.
 pub const PROPTEST_SEED: proptest::test_runner::RngSeed =
     proptest::test_runner::RngSeed::Fixed(20_261_203);
+
+/// One design of `tests/fixtures/designs/<model>.json`: where the demo saved it, its pathways
+/// (from, to, forward, backward) and its power at 50 digits (model unit) from
+/// `scripts/reference.py`'s `design_power_mp`.
+pub struct ReferenceDesign {
+    pub source: String,
+    pub pathways: Vec<(String, String, f64, f64)>,
+    pub power: f64,
+}
+
+/// The 50-digit design references of a shipped model (`stem`: `walker`, `ring6`, ...).
+pub fn design_references(stem: &str) -> Vec<ReferenceDesign> {
+    let path = root().join(format!("tests/fixtures/designs/{stem}.json"));
+    let fixture: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    fixture["designs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|case| ReferenceDesign {
+            source: case["source"].as_str().unwrap().to_string(),
+            pathways: pathways_of(case),
+            power: case["power_model_unit"].as_str().unwrap().parse().unwrap(),
+        })
+        .collect()
+}
+
+/// The pathways of a design as the tool's JSON (or a fixture) writes them.
+pub fn pathways_of(design: &serde_json::Value) -> Vec<(String, String, f64, f64)> {
+    design["pathways"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| {
+            (
+                w["from"].as_str().unwrap().to_string(),
+                w["to"].as_str().unwrap().to_string(),
+                w["forward"].as_f64().unwrap(),
+                w["backward"].as_f64().unwrap(),
+            )
+        })
+        .collect()
+}
+
+/// Asserts that `design` (the tool's JSON: pathways, and its power `power`) is the reference
+/// design saved as `source`, and that its power matches the 50-digit value. The design
+/// powers are measured within 4.1e-16 relative of the reference
+/// (`tests/all/bound_reference.rs`); 1e-12 is the margin kept there. A different design
+/// means the committed results are stale: `bash scripts/demo.sh`, then
+/// `python scripts/reference.py`.
+pub fn assert_reference_design(
+    references: &[ReferenceDesign],
+    source: &str,
+    design: &serde_json::Value,
+    power: f64,
+) {
+    let reference = references
+        .iter()
+        .find(|r| r.source == source)
+        .unwrap_or_else(|| panic!("no reference design {source}"));
+    let ours = pathways_of(design);
+    assert_eq!(ours.len(), reference.pathways.len(), "{source}");
+    for (a, b) in ours.iter().zip(&reference.pathways) {
+        assert!(
+            a.0 == b.0 && a.1 == b.1 && close(a.2, b.2, 1e-12, 0.0) && close(a.3, b.3, 1e-12, 0.0),
+            "{source}: pathway {a:?} is not the reference's {b:?} (results stale? run \
+             scripts/demo.sh, then scripts/reference.py)"
+        );
+    }
+    assert!(
+        close(power, reference.power, 1e-12, 0.0),
+        "{source}: power {power} vs the 50-digit {}",
+        reference.power
+    );
+}

@@ -371,6 +371,17 @@ fn shards_merged_equal_one_run_byte_for_byte() {
         String::from_utf8_lossy(&single.stdout),
         String::from_utf8_lossy(&merged.stdout)
     );
+    // Beyond agreeing with one run: the merged ranking is the demo's saved one (the model's own
+    // budget), each design at its 50-digit power (`scripts/reference.py`).
+    let merged: serde_json::Value = serde_json::from_slice(&merged.stdout).unwrap();
+    let references = crate::common::design_references("ring6");
+    let designs = merged["designs"].as_array().unwrap();
+    assert_eq!(designs.len(), 8);
+    for d in designs {
+        let source = format!("design.json rank {}", d["rank"]);
+        let power = d["achieved_power"].as_f64().unwrap();
+        crate::common::assert_reference_design(&references, &source, d, power);
+    }
     // Missing or repeated shards are refused with a clear message and exit status 2.
     for bad in [
         &part_args[..2],

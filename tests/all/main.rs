@@ -3,6 +3,7 @@
 mod bound;
 mod bound_reference;
 mod budget_units;
+mod capabilities;
 mod cautions;
 mod common;
 mod corpus;

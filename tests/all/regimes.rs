@@ -2,7 +2,7 @@
 //! sweeps: the strong-drive form's convergence, and the verdict's promise that the form it
 //! names is accurate.
 
-use crate::common::{load, run};
+use crate::common::{load, run, stored_scale_regimes};
 use ergopath::bound::{self, closed_form, BoundSettings};
 use ergopath::model::{Network, PairSelection};
 
@@ -137,19 +137,7 @@ fn bound_json_carries_the_regime_and_both_closed_forms() {
 
 #[test]
 fn regimes_command_tabulates_the_sweep() {
-    let out = run(&[
-        "regimes",
-        "problems/ring6.toml",
-        "--scale",
-        "stored",
-        "--from",
-        "0.01",
-        "--to",
-        "1000",
-        "--points",
-        "6",
-        "--json",
-    ]);
+    let out = run(&stored_scale_regimes("problems/ring6.toml", "6"));
     assert!(
         out.status.success(),
         "{}",

@@ -1,21 +1,23 @@
 //! Interruption and resumption of long runs: a `design`, `sweep` or `uncertainty` stopped part
 //! way (as by Ctrl-C) keeps its finished work in the checkpoint file and exits with status 130;
 //! `--resume` then ends with exactly the output of an uninterrupted run (for `uncertainty` also
-//! on more samples than the stopped run had), and an edited checkpoint is refused.
+//! on more samples than the stopped run had), and an edited checkpoint is refused. The resumed
+//! designs are also checked against their 50-digit powers (`tests/fixtures/designs/`, from
+//! `scripts/reference.py`): a resume that reproduced a wrong run would still fail there.
 
-use crate::common::{root, run, scratch};
+use crate::common::{assert_reference_design, root, run, scratch};
 
 /// Runs `args` whole, then stopped by the hidden `stop_flag`, then resumed; asserts status 130
 /// with `phrase` in the message, byte-identical output of the whole and the resumed run, and
 /// that the same checkpoint is refused to the different search `other`. Returns the
-/// checkpoint's JSON for further checks.
+/// checkpoint's JSON and the resumed run's JSON output for further checks.
 fn stop_and_resume(
     name: &str,
     args: &[&str],
     other: &[&str],
     stop_flag: &str,
     phrase: &str,
-) -> serde_json::Value {
+) -> (serde_json::Value, serde_json::Value) {
     let dir = scratch(name);
     let checkpoint = dir.join("checkpoint.json");
     let checkpoint = checkpoint.to_str().unwrap();
@@ -43,7 +45,7 @@ fn stop_and_resume(
     assert!(
         String::from_utf8_lossy(&other.stderr).contains("another model or other search settings")
     );
-    kept
+    (kept, serde_json::from_slice(&resumed.stdout).unwrap())
 }
 
 #[test]
@@ -62,7 +64,9 @@ fn interrupted_search_resumes_to_the_same_ranking() {
         "-q",
     ];
     let other = ["design", args[1], "--max-pathways", "2", "--rate-cap", "10"];
-    let kept = stop_and_resume(
+    // The model's own [pathways] budget (3 pathways, cap 10, total 100), as the demo's saved
+    // ranking has it: its first 8 designs have 50-digit references.
+    let (kept, resumed) = stop_and_resume(
         "resume",
         &args,
         &other,
@@ -71,6 +75,18 @@ fn interrupted_search_resumes_to_the_same_ranking() {
     );
     let finished = kept["finished"].as_array().unwrap().len();
     assert!((4..14).contains(&finished), "{finished} branches kept");
+    let references = crate::common::design_references("ring6");
+    let designs = resumed["designs"].as_array().unwrap();
+    assert_eq!(designs.len(), 8);
+    for d in designs {
+        let source = format!("design.json rank {}", d["rank"]);
+        assert_reference_design(
+            &references,
+            &source,
+            d,
+            d["achieved_power"].as_f64().unwrap(),
+        );
+    }
 }
 
 #[test]
@@ -94,7 +110,9 @@ fn interrupted_sweep_resumes_to_the_same_table() {
         "--points",
         "5",
     ];
-    let kept = stop_and_resume(
+    // Caps 1, 10, ..., 1e4: points of the demo's saved sweep (1 to 1e6, 13 points), whose best
+    // designs have 50-digit references.
+    let (kept, resumed) = stop_and_resume(
         "resume-sweep",
         &args,
         &other,
@@ -102,6 +120,16 @@ fn interrupted_sweep_resumes_to_the_same_table() {
         "2 of 5 budget points finished",
     );
     assert_eq!(kept["done"].as_array().unwrap().len(), 2);
+    let references = crate::common::design_references("walker");
+    for (i, point) in resumed["points"].as_array().unwrap().iter().enumerate() {
+        let source = format!("sweep-rate-cap.json point {}", 2 * i);
+        assert_reference_design(
+            &references,
+            &source,
+            point,
+            point["best_power"].as_f64().unwrap(),
+        );
+    }
 }
 
 #[test]
@@ -124,7 +152,7 @@ fn interrupted_uncertainty_resumes_to_the_same_quantiles() {
     let args = run_of("400");
     let args: Vec<&str> = args.iter().map(String::as_str).collect();
     let other = ["uncertainty", model, "--samples", "400", "--seed", "4"];
-    let kept = stop_and_resume(
+    let (kept, _) = stop_and_resume(
         "resume-uncertainty",
         &args,
         &other,
